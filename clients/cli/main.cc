@@ -1,0 +1,45 @@
+// `waymark`: the command line for Waymark. Geometry commands work locally on shape text or
+// files; server commands (added with the server) talk to waymarkd over HTTP.
+#include <iostream>
+#include <string>
+#include <vector>
+
+#include "clients/cli/geometry_commands.h"
+
+namespace {
+
+constexpr const char* kUsage = R"(usage: waymark COMMAND [options]
+
+Geometry commands (local, no server):
+  distance [--metric hausdorff|frechet|discrete-frechet] [--json] [--region] [--directed] A B
+      Exact distance between shapes A and B (files, or inline WKT / GeoJSON / SVG path data /
+      JSON point arrays). Prints the distance on the first line; --json adds the witness points.
+  landmarks [--layout grid|random|fitted] [--count N] [--domain MINX,MINY,MAXX,MAXY]
+            [--seed S] [--generation G] [--sample FILE] [--output FILE]
+      Writes a landmark file (standard output without --output). fitted needs --sample: a file
+      with one shape per line, in the frame given by --frame.
+  sketch --landmarks FILE [--json] [--region] SHAPE
+      Prints the shape's sketch vector against the landmarks.
+
+Options for every shape operand:
+  --format auto|wkt|geojson|svg|points   (default auto)
+  --frame absolute|centered|unit         (default absolute)
+  --max-vertices N   --curve-tolerance T (SVG curves)
+)";
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  std::vector<std::string> words(argv + 1, argv + argc);
+  if (words.empty() || words[0] == "help" || words[0] == "--help" || words[0] == "-h") {
+    std::cout << kUsage;
+    return words.empty() ? 2 : 0;
+  }
+  const std::string command = words[0];
+  words.erase(words.begin());
+  if (command == "distance") return waymark::cli::distance_command(words);
+  if (command == "landmarks") return waymark::cli::landmarks_command(words);
+  if (command == "sketch") return waymark::cli::sketch_command(words);
+  std::cerr << "waymark: unknown command '" << command << "'\n\n" << kUsage;
+  return 2;
+}

@@ -1,0 +1,40 @@
+#!/usr/bin/env bash
+# Installs what Waymark needs from Debian's packages, skipping what is already there.
+# Used by README.md's set-up commands and by .ci/run, so both see the same machine.
+#
+# Boost line: we use Debian's default 1.74 (libboost-dev). libboost1.81-dev conflicts with the
+# 1.74 -dev packages that python3-scipy pulls in, and installing it removes python3-scipy and
+# python3-fonttools, which the reference checks and evaluation scripts need. Asio/Beast 1.74
+# has everything the server uses.
+set -euo pipefail
+
+packages=(
+  build-essential cmake ninja-build pkg-config
+  libboost-dev                      # Asio/Beast, header-only (1.74 line, see above)
+  libfaiss-dev libopenblas-dev      # vector index; OpenBLAS for batched flat search
+  libeigen3-dev nlohmann-json3-dev libspdlog-dev libfmt-dev
+  catch2 libbenchmark-dev
+  libgeos-dev libgeos++-dev         # outside reference for distances (tests, benchmarks)
+  librocksdb-dev                    # embedded storage engine
+  hershey-fonts-data                # real single-stroke glyphs for tests and evaluation
+  python3-shapely python3-scipy     # outside references, run with /usr/bin/python3
+  clang libclang-rt-14-dev          # sanitizer and fuzzing runtimes
+)
+
+missing=()
+for package in "${packages[@]}"; do
+  status=$(dpkg-query -W -f='${Status}' "$package" 2>/dev/null || true)
+  [[ "$status" == "install ok installed" ]] || missing+=("$package")
+done
+
+if ((${#missing[@]} == 0)); then
+  echo "install-dependencies: everything is installed"
+  exit 0
+fi
+
+echo "install-dependencies: installing ${missing[*]}"
+sudo_prefix=()
+if [[ $(id -u) -ne 0 ]]; then sudo_prefix=(sudo); fi
+export DEBIAN_FRONTEND=noninteractive
+"${sudo_prefix[@]}" apt-get update -q
+"${sudo_prefix[@]}" apt-get install -y -q --no-install-recommends "${missing[@]}"

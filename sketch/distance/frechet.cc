@@ -1,0 +1,237 @@
+#include "sketch/distance/frechet.h"
+
+#include <algorithm>
+#include <cmath>
+#include <vector>
+
+#include "sketch/distance/bounds.h"
+
+namespace waymark {
+namespace {
+
+struct Interval {
+  double lo = 1, hi = 0;  // a sub-interval of [0, 1]; empty when lo > hi
+  bool empty() const { return lo > hi; }
+};
+
+// Parameters t ∈ [0, 1] with |a + t(b − a) − c| ≤ ε: the chord of a disc on a segment.
+Interval free_interval(Point a, Point b, Point c, double epsilon_squared) {
+  const double dx = b.x - a.x, dy = b.y - a.y;
+  const double fx = a.x - c.x, fy = a.y - c.y;
+  const double qa = dx * dx + dy * dy;
+  const double qb = dx * fx + dy * fy;
+  const double qc = fx * fx + fy * fy - epsilon_squared;
+  const double discriminant = qb * qb - qa * qc;
+  if (discriminant < 0) return {};
+  const double root = std::sqrt(discriminant);
+  return {std::max(0.0, (-qb - root) / qa), std::min(1.0, (-qb + root) / qa)};
+}
+
+double squared_distance(Point a, Point b) { return (a.x - b.x) * (a.x - b.x) + (a.y - b.y) * (a.y - b.y); }
+
+Point closest_on_segment(Point a, Point b, Point p) {
+  const double dx = b.x - a.x, dy = b.y - a.y;
+  const double t = std::clamp(((p.x - a.x) * dx + (p.y - a.y) * dy) / (dx * dx + dy * dy), 0.0, 1.0);
+  return {a.x + t * dx, a.y + t * dy};
+}
+
+double scale_of(const Path& p, const Path& q) {
+  double extent = 0;
+  for (const Path* path : {&p, &q}) {
+    for (const Point& v : *path) extent = std::max({extent, std::fabs(v.x), std::fabs(v.y)});
+  }
+  return std::max(extent, 1e-300);
+}
+
+struct Candidate {
+  double value;
+  Point from, to;  // from on P, to on Q
+  bool operator<(const Candidate& other) const { return value < other.value; }
+};
+
+// Vertex-to-segment distances strictly between lo and hi (type B critical values).
+void collect_vertex_segment(const Path& vertices, const Path& segments, bool vertices_on_p, double lo, double hi,
+                            std::vector<Candidate>& out) {
+  const double lo2 = lo * lo, hi2 = hi * hi;
+  for (const Point& v : vertices) {
+    for (std::size_t j = 0; j + 1 < segments.size(); ++j) {
+      const Point c = closest_on_segment(segments[j], segments[j + 1], v);
+      const double d2 = squared_distance(v, c);
+      if (d2 > lo2 && d2 < hi2) {
+        out.push_back(vertices_on_p ? Candidate{std::sqrt(d2), v, c} : Candidate{std::sqrt(d2), c, v});
+      }
+    }
+  }
+}
+
+// Points of a segment equidistant from two vertices of the other curve, with that distance
+// strictly between lo and hi (type C critical values).
+void collect_equidistant(const Path& vertices, const Path& segments, bool vertices_on_p, double lo, double hi,
+                         std::vector<Candidate>& out) {
+  const double hi2 = hi * hi;
+  std::vector<std::size_t> near;
+  for (std::size_t j = 0; j + 1 < segments.size(); ++j) {
+    const Point a = segments[j], b = segments[j + 1];
+    near.clear();
+    for (std::size_t k = 0; k < vertices.size(); ++k) {
+      if (squared_distance(vertices[k], closest_on_segment(a, b, vertices[k])) < hi2) near.push_back(k);
+    }
+    const double dx = b.x - a.x, dy = b.y - a.y;
+    for (std::size_t x = 0; x < near.size(); ++x) {
+      for (std::size_t y = x + 1; y < near.size(); ++y) {
+        const Point pk = vertices[near[x]], pl = vertices[near[y]];
+        const double denominator = 2 * (dx * (pl.x - pk.x) + dy * (pl.y - pk.y));
+        if (denominator == 0) continue;
+        const double t = (squared_distance(pl, a) - squared_distance(pk, a)) / denominator;
+        if (t < 0 || t > 1) continue;
+        const Point on_segment{a.x + t * dx, a.y + t * dy};
+        const double value = std::sqrt(squared_distance(on_segment, pk));
+        if (value > lo && value < hi) {
+          out.push_back(vertices_on_p ? Candidate{value, pk, on_segment} : Candidate{value, on_segment, pk});
+        }
+      }
+    }
+  }
+}
+
+// Narrows (lo, hi] to the smallest candidate whose decision says yes. Expected linear work in
+// the candidate count (quickselect), plus log2(count) decisions.
+void search_candidates(const Path& p, const Path& q, double slack, std::vector<Candidate>& candidates, double& lo,
+                       Candidate& hi) {
+  auto begin = candidates.begin(), end = candidates.end();
+  while (begin < end) {
+    auto middle = begin + (end - begin) / 2;
+    std::nth_element(begin, middle, end);
+    if (frechet_at_most(p, q, middle->value + slack)) {
+      hi = *middle;
+      end = middle;
+    } else {
+      lo = middle->value;
+      begin = middle + 1;
+    }
+  }
+}
+
+Path without_repeats(const Path& path) {
+  Path out;
+  out.reserve(path.size());
+  for (const Point& v : path) {
+    if (out.empty() || !(out.back() == v)) out.push_back(v);
+  }
+  return out;
+}
+
+}  // namespace
+
+Result<Path> curve_of(const Shape& shape) {
+  if (shape.kind == ShapeKind::points) {
+    return Status(StatusCode::not_applicable, "Fréchet distance needs a curve (a polyline or a polygon ring), not a point set");
+  }
+  if (shape.parts.size() != 1) {
+    return Status(StatusCode::not_applicable,
+                  "Fréchet distance needs a single curve, but the shape has " + std::to_string(shape.parts.size()) +
+                      (shape.kind == ShapeKind::polygon ? " rings" : " strokes"));
+  }
+  Path curve = shape.parts.front();
+  if (shape.kind == ShapeKind::polygon) curve.push_back(curve.front());  // back to the start vertex
+  curve = without_repeats(curve);
+  if (curve.size() < 2) return Status(StatusCode::not_applicable, "the curve has fewer than two distinct vertices");
+  return curve;
+}
+
+bool frechet_at_most(const Path& p, const Path& q, double epsilon) {
+  const std::size_t n = p.size() - 1, m = q.size() - 1;  // segment counts
+  const double e2 = epsilon * epsilon;
+  if (squared_distance(p.front(), q.front()) > e2 || squared_distance(p.back(), q.back()) > e2) return false;
+
+  // bottom[i]: reachable part of the bottom edge of cell (i, j) for the current row j.
+  thread_local std::vector<Interval> bottom;
+  bottom.assign(n, Interval{});
+  bool chain = true;  // the t = 0 boundary is reachable up to here
+  for (std::size_t i = 0; i < n && chain; ++i) {
+    const Interval free = free_interval(p[i], p[i + 1], q[0], e2);
+    if (free.empty() || free.lo > 0) break;
+    bottom[i] = free;
+    chain = free.hi >= 1;
+  }
+  bool left_chain = true;  // the s = 0 boundary is reachable up to row j
+  for (std::size_t j = 0; j < m; ++j) {
+    Interval left;
+    if (left_chain) {
+      const Interval free = free_interval(q[j], q[j + 1], p[0], e2);
+      if (!free.empty() && free.lo <= 0) left = free;
+      left_chain = !left.empty() && left.hi >= 1;
+    }
+    bool next_row_reachable = left_chain;
+    for (std::size_t i = 0; i < n; ++i) {
+      const Interval below = bottom[i];
+      Interval right, top;
+      if (!below.empty() || !left.empty()) {
+        const Interval right_free = free_interval(q[j], q[j + 1], p[i + 1], e2);
+        right = below.empty() ? Interval{std::max(right_free.lo, left.lo), right_free.hi} : right_free;
+        const Interval top_free = free_interval(p[i], p[i + 1], q[j + 1], e2);
+        top = left.empty() ? Interval{std::max(top_free.lo, below.lo), top_free.hi} : top_free;
+        if (!top.empty()) next_row_reachable = true;
+      }
+      bottom[i] = top;
+      left = right;
+    }
+    if (j + 1 == m) {
+      return (!left.empty() && left.hi >= 1) || (!bottom[n - 1].empty() && bottom[n - 1].hi >= 1);
+    }
+    if (!next_row_reachable) return false;
+  }
+  return false;
+}
+
+DistanceResult frechet(const Path& p, const Path& q) {
+  const double slack = 1e-10 * scale_of(p, q);
+  DistanceResult result;
+  const double first = std::sqrt(squared_distance(p.front(), q.front()));
+  const double last = std::sqrt(squared_distance(p.back(), q.back()));
+  Candidate endpoint = first >= last ? Candidate{first, p.front(), q.front()} : Candidate{last, p.back(), q.back()};
+  auto finish = [&](const Candidate& c) {
+    result.value = c.value;
+    result.upper_bound = c.value + slack;
+    result.from = c.from;
+    result.to = c.to;
+    return result;
+  };
+  if (frechet_at_most(p, q, endpoint.value + slack)) return finish(endpoint);
+
+  const DistanceResult discrete = discrete_frechet(p, q);  // an upper bound, decided yes
+  double lo = endpoint.value;
+  Candidate hi{discrete.value, discrete.from, discrete.to};
+  std::vector<Candidate> candidates;
+  collect_vertex_segment(p, q, true, lo, hi.value, candidates);
+  collect_vertex_segment(q, p, false, lo, hi.value, candidates);
+  search_candidates(p, q, slack, candidates, lo, hi);
+  candidates.clear();
+  collect_equidistant(p, q, true, lo, hi.value, candidates);
+  collect_equidistant(q, p, false, lo, hi.value, candidates);
+  search_candidates(p, q, slack, candidates, lo, hi);
+  return finish(hi);
+}
+
+Result<bool> frechet_at_most(const Shape& p, const Shape& q, double epsilon) {
+  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
+  if (!curve_p) return curve_p.status();
+  if (!curve_q) return curve_q.status();
+  return frechet_at_most(*curve_p, *curve_q, epsilon);
+}
+
+Result<DistanceResult> frechet(const Shape& p, const Shape& q) {
+  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
+  if (!curve_p) return curve_p.status();
+  if (!curve_q) return curve_q.status();
+  return frechet(*curve_p, *curve_q);
+}
+
+Result<DistanceResult> discrete_frechet(const Shape& p, const Shape& q) {
+  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
+  if (!curve_p) return curve_p.status();
+  if (!curve_q) return curve_q.status();
+  return discrete_frechet(*curve_p, *curve_q);
+}
+
+}  // namespace waymark

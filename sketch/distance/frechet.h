@@ -1,0 +1,41 @@
+// Fréchet distances between two curves.
+//
+// A curve is a polyline with one stroke, or a polygon with one ring; a ring is traversed from
+// its first vertex as given, in its given direction, and back to that vertex (the start point
+// is not optimised over). Other shapes — point sets, several strokes or rings — get a
+// not_applicable error saying so. Repeated consecutive vertices are dropped first.
+//
+// Continuous (Alt & Godau, "Computing the Fréchet distance between two polygonal curves",
+// IJCGA 5, 1995):
+//   frechet_at_most(P, Q, ε) decides d_F ≤ ε on the free-space diagram, cell by cell, keeping
+//   one row of reachable intervals: O(n·m) time, O(n + m) memory, with an early "no" once no
+//   cell of a row is reachable.
+//   frechet(P, Q) finds the value among the critical values — the endpoint distances, the
+//   vertex-to-segment distances, and the distances at which a segment's point is equidistant
+//   from two vertices of the other curve — by binary search with the decision procedure over
+//   the candidates between a lower bound (endpoints) and an upper bound (discrete Fréchet).
+//   Each decision is made at candidate + 1e-10 × the curves' scale to absorb rounding, so the
+//   value is within that of the true distance.
+// Discrete (Eiter & Mannila, "Computing discrete Fréchet distance", TU Wien CD-TR 94/64,
+// 1994): the coupling distance over vertices only, by dynamic programming in O(n·m) time and
+// O(n + m) memory. It is an upper bound on the continuous distance.
+#pragma once
+
+#include "sketch/distance/hausdorff.h"  // DistanceResult
+#include "sketch/geometry/shape.h"
+
+namespace waymark {
+
+// The curve of a shape as described above, or not_applicable.
+Result<Path> curve_of(const Shape& shape);
+
+Result<bool> frechet_at_most(const Shape& p, const Shape& q, double epsilon);
+Result<DistanceResult> frechet(const Shape& p, const Shape& q);
+Result<DistanceResult> discrete_frechet(const Shape& p, const Shape& q);
+
+// The same on curves already extracted with curve_of (at least two vertices, no repeats).
+bool frechet_at_most(const Path& p, const Path& q, double epsilon);
+DistanceResult frechet(const Path& p, const Path& q);
+DistanceResult discrete_frechet(const Path& p, const Path& q);
+
+}  // namespace waymark

@@ -1,0 +1,223 @@
+#include "sketch/distance/hausdorff.h"
+
+#include <algorithm>
+#include <cfloat>
+#include <cmath>
+#include <limits>
+#include <vector>
+
+#include "sketch/distance/bounds.h"
+
+namespace waymark {
+namespace {
+
+constexpr double kInfinity = std::numeric_limits<double>::infinity();
+
+// d(p, B), scanning B's segments from the one nearest to the previous point and stopping at
+// the first one within `threshold`: the returned value is exact when it exceeds `threshold`,
+// and otherwise an upper bound on d(p, B) that is at most `threshold`.
+class DistanceToShape {
+ public:
+  DistanceToShape(const PreparedShape& target, bool region) : target_(target), region_(region) {}
+
+  double upper_bound(Point p, double threshold, Point* closest) {
+    if (region_ && target_.contains(p)) {
+      *closest = p;
+      return 0;
+    }
+    return boundary_distance(p, threshold, closest);
+  }
+
+  // Distance to B's segments only (ignores the filled region).
+  double boundary_distance(Point p, double threshold, Point* closest) {
+    const std::size_t n = target_.segment_count();
+    const double threshold_squared = threshold > 0 ? threshold * threshold : -1;
+    double best_squared = kInfinity;
+    std::size_t best = hint_;
+    for (std::size_t k = 0, i = hint_; k < n; ++k, i = (i + 1 == n) ? 0 : i + 1) {
+      const double d2 = target_.squared_distance_to_segment(i, p);
+      if (d2 < best_squared) {
+        best_squared = d2;
+        best = i;
+        if (d2 <= threshold_squared) break;
+      }
+    }
+    hint_ = best;
+    target_.squared_distance_to_segment(best, p, closest);
+    return std::sqrt(best_squared);
+  }
+
+ private:
+  const PreparedShape& target_;
+  bool region_;
+  std::size_t hint_ = 0;
+};
+
+struct SearchState {
+  double best = 0;       // largest exact value found (or the floor it started from)
+  double tolerance = 0;
+  bool found = false;
+  Point from, to;
+  double unresolved_upper = -kInfinity;  // set when a budget ran out
+  bool stop_when_found = false;          // decision mode: any exact value above the floor answers
+};
+
+void offer(SearchState& state, double value, Point from, Point to) {
+  if (value > state.best) {
+    state.best = value;
+    state.found = true;
+    state.from = from;
+    state.to = to;
+  }
+}
+
+bool done(const SearchState& state) { return state.stop_when_found && state.found; }
+
+struct Piece {
+  double t0, t1, f0, f1;
+};
+
+void search_boundary(const PreparedShape& a, DistanceToShape& to_b, SearchState& state) {
+  std::vector<Piece> stack;
+  for (std::size_t i = 0; i < a.segment_count() && !done(state); ++i) {
+    Point closest;
+    const Point p0 = a.segment_start(i);
+    const double f0 = to_b.upper_bound(p0, state.best, &closest);
+    offer(state, f0, p0, closest);
+    const double length = a.segment_length(i);
+    if (length == 0) continue;
+    const Point p1 = a.segment_end(i);
+    const double f1 = to_b.upper_bound(p1, state.best, &closest);
+    offer(state, f1, p1, closest);
+    stack.push_back({0, 1, f0, f1});
+    while (!stack.empty() && !done(state)) {
+      const Piece piece = stack.back();
+      stack.pop_back();
+      const double piece_length = (piece.t1 - piece.t0) * length;
+      if ((piece.f0 + piece.f1 + piece_length) / 2 <= state.best + state.tolerance) continue;
+      const double t_mid = (piece.t0 + piece.t1) / 2;
+      const Point mid = a.point_on_segment(i, t_mid);
+      const double f_mid = to_b.upper_bound(mid, state.best, &closest);
+      offer(state, f_mid, mid, closest);
+      stack.push_back({piece.t0, t_mid, piece.f0, f_mid});
+      stack.push_back({t_mid, piece.t1, f_mid, piece.f1});
+    }
+  }
+}
+
+// Region semantics, interior of polygon A: 2D branch and bound over square cells. With
+// s(p) the signed distance to B's boundary (negative inside B), d(p, region B) = max(0, s(p))
+// and s is 1-Lipschitz, so over a cell of half-diagonal h the value is at most max(0, s(c) + h).
+void search_interior(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options,
+                     SearchState& state) {
+  struct Cell {
+    double x, y, half, upper;
+  };
+  DistanceToShape to_a(a, false), to_b(b, false);
+  const double half = std::max(a.box.width(), a.box.height()) / 2;
+  std::vector<Cell> stack{{(a.box.min_x + a.box.max_x) / 2, (a.box.min_y + a.box.max_y) / 2, half, kInfinity}};
+  std::size_t budget = options.region_cell_budget;
+  Point closest;
+  while (!stack.empty() && !done(state)) {
+    const Cell cell = stack.back();
+    stack.pop_back();
+    if (cell.upper <= state.best + state.tolerance) continue;
+    if (budget == 0) {
+      state.unresolved_upper = std::max(state.unresolved_upper, cell.upper);
+      continue;
+    }
+    --budget;
+    const Point c{cell.x, cell.y};
+    const double half_diagonal = cell.half * std::sqrt(2.0);
+    const bool in_a = a.contains(c);
+    if (!in_a && to_a.boundary_distance(c, half_diagonal, &closest) > half_diagonal) continue;  // misses A
+    double upper;
+    if (b.contains(c)) {
+      const double depth = to_b.boundary_distance(c, -1, &closest);  // exact
+      upper = std::max(0.0, half_diagonal - depth);
+      if (in_a) offer(state, 0, c, c);
+    } else {
+      const double d = to_b.boundary_distance(c, state.best + state.tolerance - half_diagonal, &closest);
+      upper = d + half_diagonal;
+      if (in_a) offer(state, d, c, closest);
+    }
+    if (upper <= state.best + state.tolerance) continue;
+    const double quarter = cell.half / 2;
+    for (double dx : {-quarter, quarter}) {
+      for (double dy : {-quarter, quarter}) stack.push_back({cell.x + dx, cell.y + dy, quarter, upper});
+    }
+  }
+}
+
+double tolerance_for(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options) {
+  const double scale = std::max(a.diameter_bound, b.diameter_bound);
+  // Never below what double rounding can resolve at these coordinates, so the search ends.
+  const double magnitude = std::max({std::fabs(a.box.min_x), std::fabs(a.box.max_x), std::fabs(a.box.min_y),
+                                     std::fabs(a.box.max_y), std::fabs(b.box.min_x), std::fabs(b.box.max_x),
+                                     std::fabs(b.box.min_y), std::fabs(b.box.max_y), 1e-300});
+  return std::max(options.relative_tolerance * scale, 16 * DBL_EPSILON * magnitude);
+}
+
+// Runs the directed search from A to B with the running maximum starting at `floor`.
+SearchState directed_search(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options,
+                            double floor, bool stop_when_found) {
+  SearchState state;
+  state.best = floor;
+  state.tolerance = tolerance_for(a, b, options);
+  state.stop_when_found = stop_when_found;
+  DistanceToShape to_b(b, options.region_semantics);
+  search_boundary(a, to_b, state);
+  if (options.region_semantics && a.kind == ShapeKind::polygon && !done(state)) {
+    search_interior(a, b, options, state);
+  }
+  return state;
+}
+
+DistanceResult to_result(const SearchState& state) {
+  DistanceResult result;
+  result.value = state.best;
+  result.from = state.from;
+  result.to = state.to;
+  result.converged = state.unresolved_upper == -kInfinity;
+  result.upper_bound = std::max(state.best + state.tolerance, state.unresolved_upper);
+  return result;
+}
+
+}  // namespace
+
+DistanceResult directed_hausdorff(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options) {
+  return to_result(directed_search(a, b, options, -1, false));
+}
+
+DistanceResult hausdorff(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options) {
+  const SearchState forward = directed_search(a, b, options, -1, false);
+  // The reverse direction only matters where it beats the forward value: start from it.
+  const SearchState backward = directed_search(b, a, options, forward.best, false);
+  DistanceResult result = to_result(forward);
+  if (backward.found) {
+    result.value = backward.best;
+    result.from = backward.to;  // keep "from" on the first shape
+    result.to = backward.from;
+  }
+  const DistanceResult backward_bounds = to_result(backward);
+  result.upper_bound = std::max(result.upper_bound, backward_bounds.upper_bound);
+  result.converged = result.converged && backward_bounds.converged;
+  return result;
+}
+
+bool hausdorff_at_most(const PreparedShape& a, const PreparedShape& b, double epsilon,
+                       const HausdorffOptions& options) {
+  if (bounding_box_lower_bound(a.box, b.box) > epsilon) return false;
+  if (directed_search(a, b, options, epsilon, true).found) return false;
+  return !directed_search(b, a, options, epsilon, true).found;
+}
+
+DistanceResult hausdorff(const Shape& a, const Shape& b, const HausdorffOptions& options) {
+  return hausdorff(PreparedShape(a), PreparedShape(b), options);
+}
+
+DistanceResult directed_hausdorff(const Shape& a, const Shape& b, const HausdorffOptions& options) {
+  return directed_hausdorff(PreparedShape(a), PreparedShape(b), options);
+}
+
+}  // namespace waymark

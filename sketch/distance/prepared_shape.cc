@@ -1,0 +1,63 @@
+#include "sketch/distance/prepared_shape.h"
+
+#include <algorithm>
+#include <cmath>
+
+namespace waymark {
+
+PreparedShape::PreparedShape(const Shape& shape)
+    : kind(shape.kind), box(bounding_box(shape)), diameter_bound(box.diagonal()) {
+  auto add = [&](Point a, Point b) {
+    const double dx = b.x - a.x, dy = b.y - a.y;
+    const double length_squared = dx * dx + dy * dy;
+    start_x.push_back(a.x);
+    start_y.push_back(a.y);
+    delta_x.push_back(dx);
+    delta_y.push_back(dy);
+    inverse_length_squared.push_back(length_squared > 0 ? 1 / length_squared : 0);
+  };
+  for (const Path& part : shape.parts) {
+    switch (shape.kind) {
+      case ShapeKind::points:
+        for (const Point& p : part) add(p, p);
+        break;
+      case ShapeKind::polyline:
+        for (std::size_t i = 0; i + 1 < part.size(); ++i) {
+          if (!(part[i] == part[i + 1])) add(part[i], part[i + 1]);
+        }
+        break;
+      case ShapeKind::polygon:
+        for (std::size_t i = 0; i < part.size(); ++i) {
+          const Point& next = part[(i + 1) % part.size()];
+          if (!(part[i] == next)) add(part[i], next);
+        }
+        break;
+    }
+  }
+}
+
+double PreparedShape::segment_length(std::size_t i) const { return std::hypot(delta_x[i], delta_y[i]); }
+
+double PreparedShape::squared_distance_to_segment(std::size_t i, Point p, Point* closest) const {
+  const double px = p.x - start_x[i], py = p.y - start_y[i];
+  const double t = std::clamp((px * delta_x[i] + py * delta_y[i]) * inverse_length_squared[i], 0.0, 1.0);
+  const double ex = px - t * delta_x[i], ey = py - t * delta_y[i];
+  if (closest) *closest = point_on_segment(i, t);
+  return ex * ex + ey * ey;
+}
+
+bool PreparedShape::contains(Point p) const {
+  if (kind != ShapeKind::polygon) return false;
+  if (p.x < box.min_x || p.x > box.max_x || p.y < box.min_y || p.y > box.max_y) return false;
+  bool inside = false;
+  for (std::size_t i = 0, n = segment_count(); i < n; ++i) {
+    const double ay = start_y[i], by = start_y[i] + delta_y[i];
+    if ((ay > p.y) != (by > p.y)) {
+      const double x_cross = start_x[i] + (p.y - ay) / delta_y[i] * delta_x[i];
+      if (p.x < x_cross) inside = !inside;
+    }
+  }
+  return inside;
+}
+
+}  // namespace waymark

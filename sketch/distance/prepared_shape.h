@@ -1,0 +1,46 @@
+// A shape turned into the form the distance algorithms work on: its segments in
+// structure-of-arrays layout, its bounding box and, for polygons, what is needed to test
+// whether a point lies in the filled region.
+//
+// Build once per shape and reuse across many distance calls (re-ranking does). Point sets
+// become zero-length segments, polylines their consecutive vertex pairs, polygons their ring
+// edges including each closing edge. Immutable after construction; safe to share between
+// threads.
+#pragma once
+
+#include <cstddef>
+#include <vector>
+
+#include "sketch/geometry/shape.h"
+
+namespace waymark {
+
+struct PreparedShape {
+  explicit PreparedShape(const Shape& shape);
+
+  ShapeKind kind;
+  Box box;
+  double diameter_bound;  // bounding-box diagonal: at least the shape's diameter
+
+  // Segment i runs from (start_x[i], start_y[i]) to (start_x[i] + delta_x[i], ...).
+  // inverse_length_squared[i] is 1/|delta|², or 0 for a zero-length segment.
+  std::vector<double> start_x, start_y, delta_x, delta_y, inverse_length_squared;
+
+  std::size_t segment_count() const { return start_x.size(); }
+  Point segment_start(std::size_t i) const { return {start_x[i], start_y[i]}; }
+  Point segment_end(std::size_t i) const { return {start_x[i] + delta_x[i], start_y[i] + delta_y[i]}; }
+  double segment_length(std::size_t i) const;
+  Point point_on_segment(std::size_t i, double fraction) const {
+    return {start_x[i] + fraction * delta_x[i], start_y[i] + fraction * delta_y[i]};
+  }
+
+  // Squared distance from p to segment i and the closest point on it. O(1).
+  double squared_distance_to_segment(std::size_t i, Point p, Point* closest = nullptr) const;
+
+  // For polygons: whether p lies in the filled region (even–odd rule over all rings, so holes
+  // are excluded; points exactly on the boundary count as either). Always false for other
+  // kinds. O(segment count).
+  bool contains(Point p) const;
+};
+
+}  // namespace waymark

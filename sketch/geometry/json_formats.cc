@@ -1,0 +1,262 @@
+// GeoJSON geometry objects (RFC 7946 §3.1) and JSON point arrays, read and written.
+// Errors name the JSON path of the offending value, e.g. "$.coordinates[0][3][1]".
+#include <cmath>
+#include <nlohmann/json.hpp>
+#include <string>
+
+#include "sketch/geometry/formats.h"
+#include "sketch/geometry/text_cursor.h"
+
+namespace waymark {
+namespace {
+
+using Json = nlohmann::json;
+
+Result<Json> parse_json_text(std::string_view text) {
+  try {
+    return Json::parse(text.begin(), text.end());
+  } catch (const Json::parse_error& error) {
+    // nlohmann reports the byte just past the problem, counted from 1.
+    const std::size_t byte = error.byte > 0 ? error.byte - 1 : 0;
+    std::string message = error.what();
+    if (auto colon = message.rfind(": "); colon != std::string::npos) message = message.substr(colon + 2);
+    return invalid_argument("invalid JSON: " + message, detail::TextCursor(text).where_at(byte));
+  }
+}
+
+class JsonShapeReader {
+ public:
+  explicit JsonShapeReader(const ParseOptions& options) : options_(options) {}
+
+  Status read_position(const Json& value, const std::string& path, Path& out) {
+    if (!value.is_array() || value.size() < 2) return invalid_argument("expected a position [x, y]", path);
+    if (value.size() > 2) return invalid_argument("only 2D positions [x, y] are supported", path);
+    Point point;
+    for (int axis = 0; axis < 2; ++axis) {
+      const Json& number = value[axis];
+      const std::string where = path + "[" + std::to_string(axis) + "]";
+      if (!number.is_number()) return invalid_argument("expected a number", where);
+      const double v = number.get<double>();
+      if (!std::isfinite(v)) return invalid_argument("coordinate is not a finite number", where);
+      (axis == 0 ? point.x : point.y) = v;
+    }
+    if (++vertices_read_ > options_.limits.max_vertices) {
+      return Status(StatusCode::resource_exhausted,
+                    "more than " + std::to_string(options_.limits.max_vertices) + " vertices", path);
+    }
+    out.push_back(point);
+    return Status::ok();
+  }
+
+  Status read_positions(const Json& value, const std::string& path, Path& out) {
+    if (!value.is_array()) return invalid_argument("expected an array of positions", path);
+    for (std::size_t i = 0; i < value.size(); ++i) {
+      if (Status s = read_position(value[i], path + "[" + std::to_string(i) + "]", out); !s.is_ok()) return s;
+    }
+    return Status::ok();
+  }
+
+  Status read_polygon(const Json& value, const std::string& path, std::uint32_t polygon, Shape& shape) {
+    if (!value.is_array() || value.empty()) return invalid_argument("expected an array of rings", path);
+    for (std::size_t r = 0; r < value.size(); ++r) {
+      const std::string ring_path = path + "[" + std::to_string(r) + "]";
+      Path ring;
+      if (Status s = read_positions(value[r], ring_path, ring); !s.is_ok()) return s;
+      if (ring.size() < 2 || !(ring.front() == ring.back())) {
+        return invalid_argument("polygon ring is not closed: its last position must repeat its first", ring_path);
+      }
+      ring.pop_back();
+      shape.parts.push_back(std::move(ring));
+      shape.polygon_of_ring.push_back(polygon);
+    }
+    return Status::ok();
+  }
+
+  Result<Shape> read_geometry(const Json& object, const std::string& path) {
+    if (!object.is_object()) return invalid_argument("expected a GeoJSON object", path);
+    auto type_member = object.find("type");
+    if (type_member == object.end() || !type_member->is_string()) {
+      return invalid_argument("missing string member \"type\"", path);
+    }
+    const std::string type = type_member->get<std::string>();
+    if (type == "Feature") {
+      auto geometry = object.find("geometry");
+      if (geometry == object.end() || geometry->is_null()) {
+        return invalid_argument("Feature has no geometry", path + ".geometry");
+      }
+      return read_geometry(*geometry, path + ".geometry");
+    }
+    auto coordinates = object.find("coordinates");
+    if (type == "GeometryCollection" || type == "FeatureCollection") {
+      return invalid_argument("unsupported GeoJSON type \"" + type + "\": give one geometry or Feature", path + ".type");
+    }
+    if (coordinates == object.end()) return invalid_argument("missing member \"coordinates\"", path);
+    const std::string where = path + ".coordinates";
+    if (coordinates->is_array() && coordinates->empty()) {
+      return invalid_argument("empty geometries are not supported", where);
+    }
+    Shape shape;
+    Status status;
+    if (type == "Point") {
+      shape.kind = ShapeKind::points;
+      shape.parts.emplace_back();
+      status = read_position(*coordinates, where, shape.parts.back());
+    } else if (type == "MultiPoint") {
+      shape.kind = ShapeKind::points;
+      shape.parts.emplace_back();
+      status = read_positions(*coordinates, where, shape.parts.back());
+    } else if (type == "LineString") {
+      shape.kind = ShapeKind::polyline;
+      shape.parts.emplace_back();
+      status = read_positions(*coordinates, where, shape.parts.back());
+    } else if (type == "MultiLineString" || type == "Polygon" || type == "MultiPolygon") {
+      if (!coordinates->is_array()) return invalid_argument("expected an array", where);
+      if (type == "MultiLineString") {
+        shape.kind = ShapeKind::polyline;
+        for (std::size_t i = 0; i < coordinates->size() && status.is_ok(); ++i) {
+          shape.parts.emplace_back();
+          status = read_positions((*coordinates)[i], where + "[" + std::to_string(i) + "]", shape.parts.back());
+        }
+      } else if (type == "Polygon") {
+        shape.kind = ShapeKind::polygon;
+        status = read_polygon(*coordinates, where, 0, shape);
+      } else {
+        shape.kind = ShapeKind::polygon;
+        for (std::size_t i = 0; i < coordinates->size() && status.is_ok(); ++i) {
+          status = read_polygon((*coordinates)[i], where + "[" + std::to_string(i) + "]",
+                                static_cast<std::uint32_t>(i), shape);
+        }
+      }
+    } else {
+      return invalid_argument("unsupported GeoJSON type \"" + type + "\"", path + ".type");
+    }
+    if (!status.is_ok()) return status;
+    if (Status valid = validate(shape, options_.limits); !valid.is_ok()) return valid;
+    return shape;
+  }
+
+ private:
+  const ParseOptions& options_;
+  std::size_t vertices_read_ = 0;
+};
+
+Json position_json(const Point& p) { return Json::array({p.x, p.y}); }
+
+Json path_json(const Path& path, bool close_ring) {
+  Json out = Json::array();
+  for (const Point& p : path) out.push_back(position_json(p));
+  if (close_ring && !path.empty()) out.push_back(position_json(path.front()));
+  return out;
+}
+
+}  // namespace
+
+Result<Shape> parse_geojson(std::string_view text, const ParseOptions& options) {
+  Result<Json> json = parse_json_text(text);
+  if (!json) return json.status();
+  return JsonShapeReader(options).read_geometry(*json, "$");
+}
+
+Result<Shape> parse_point_arrays(std::string_view text, const ParseOptions& options) {
+  Result<Json> json = parse_json_text(text);
+  if (!json) return json.status();
+  const Json& root = *json;
+  if (!root.is_array() || root.empty()) return invalid_argument("expected a non-empty array of points or strokes", "$");
+  JsonShapeReader reader(options);
+  Shape shape;
+  shape.kind = ShapeKind::polyline;
+  // [[x,y],...] is one stroke; [[[x,y],...],...] several: the depth of the first element decides.
+  const bool several_strokes = root[0].is_array() && !root[0].empty() && root[0][0].is_array();
+  if (!several_strokes) {
+    shape.parts.emplace_back();
+    if (Status s = reader.read_positions(root, "$", shape.parts.back()); !s.is_ok()) return s;
+  } else {
+    for (std::size_t i = 0; i < root.size(); ++i) {
+      shape.parts.emplace_back();
+      if (Status s = reader.read_positions(root[i], "$[" + std::to_string(i) + "]", shape.parts.back()); !s.is_ok()) {
+        return s;
+      }
+    }
+  }
+  if (Status valid = validate(shape, options.limits); !valid.is_ok()) return valid;
+  return shape;
+}
+
+std::string to_geojson(const Shape& shape) {
+  Json geometry;
+  switch (shape.kind) {
+    case ShapeKind::points:
+      if (shape.parts.front().size() == 1) {
+        geometry = {{"type", "Point"}, {"coordinates", position_json(shape.parts.front().front())}};
+      } else {
+        geometry = {{"type", "MultiPoint"}, {"coordinates", path_json(shape.parts.front(), false)}};
+      }
+      break;
+    case ShapeKind::polyline:
+      if (shape.parts.size() == 1) {
+        geometry = {{"type", "LineString"}, {"coordinates", path_json(shape.parts.front(), false)}};
+      } else {
+        Json strokes = Json::array();
+        for (const Path& part : shape.parts) strokes.push_back(path_json(part, false));
+        geometry = {{"type", "MultiLineString"}, {"coordinates", strokes}};
+      }
+      break;
+    case ShapeKind::polygon: {
+      Json polygons = Json::array();
+      for (std::size_t r = 0; r < shape.parts.size(); ++r) {
+        if (shape.polygon_of_ring[r] >= polygons.size()) polygons.push_back(Json::array());
+        polygons.back().push_back(path_json(shape.parts[r], true));
+      }
+      if (polygons.size() == 1) geometry = {{"type", "Polygon"}, {"coordinates", polygons[0]}};
+      else geometry = {{"type", "MultiPolygon"}, {"coordinates", polygons}};
+      break;
+    }
+  }
+  // nlohmann prints doubles with enough digits to round-trip.
+  return geometry.dump();
+}
+
+const char* shape_format_name(ShapeFormat format) {
+  switch (format) {
+    case ShapeFormat::automatic: return "auto";
+    case ShapeFormat::wkt: return "wkt";
+    case ShapeFormat::geojson: return "geojson";
+    case ShapeFormat::svg_path: return "svg";
+    case ShapeFormat::point_arrays: return "points";
+  }
+  return "unknown";
+}
+
+Result<ShapeFormat> parse_shape_format(const std::string& name) {
+  for (ShapeFormat format : {ShapeFormat::automatic, ShapeFormat::wkt, ShapeFormat::geojson, ShapeFormat::svg_path,
+                             ShapeFormat::point_arrays}) {
+    if (name == shape_format_name(format)) return format;
+  }
+  return invalid_argument("unknown shape format '" + name + "' (expected auto, wkt, geojson, svg or points)");
+}
+
+Result<Shape> parse_shape(std::string_view text, ShapeFormat format, const ParseOptions& options) {
+  if (format == ShapeFormat::automatic) {
+    std::size_t first = 0;
+    while (first < text.size() && std::isspace(static_cast<unsigned char>(text[first]))) ++first;
+    const char c = first < text.size() ? text[first] : '\0';
+    if (c == '{') format = ShapeFormat::geojson;
+    else if (c == '[') format = ShapeFormat::point_arrays;
+    else if (c == 'M' || c == 'm') format = ShapeFormat::svg_path;
+    else format = ShapeFormat::wkt;
+    // "MULTI..." is WKT, not an SVG moveto.
+    if (format == ShapeFormat::svg_path && first + 1 < text.size() && std::isalpha(static_cast<unsigned char>(text[first + 1]))) {
+      format = ShapeFormat::wkt;
+    }
+  }
+  switch (format) {
+    case ShapeFormat::wkt: return parse_wkt(text, options);
+    case ShapeFormat::geojson: return parse_geojson(text, options);
+    case ShapeFormat::svg_path: return parse_svg_path(text, options);
+    case ShapeFormat::point_arrays: return parse_point_arrays(text, options);
+    case ShapeFormat::automatic: break;
+  }
+  return Status(StatusCode::internal, "no parser chosen");
+}
+
+}  // namespace waymark
