@@ -4,6 +4,7 @@
 #include <cfloat>
 #include <cmath>
 #include <limits>
+#include <queue>
 #include <vector>
 
 #include "sketch/distance/bounds.h"
@@ -20,10 +21,17 @@ class DistanceToShape {
  public:
   DistanceToShape(const PreparedShape& target, bool region) : target_(target), region_(region) {}
 
+  // The segment the last boundary evaluation ended on (nearest, or within the threshold).
+  std::size_t last_segment() const { return hint_; }
+
+  // With region semantics a point inside B gets its signed value −depth (exact, so that it
+  // bounds nearby points: the signed distance is 1-Lipschitz too); d(p, region B) is then
+  // max(0, value) and the closest point is p itself.
   double upper_bound(Point p, double threshold, Point* closest) {
     if (region_ && target_.contains(p)) {
+      const double depth = boundary_distance(p, -1, closest);
       *closest = p;
-      return 0;
+      return -depth;
     }
     return boundary_distance(p, threshold, closest);
   }
@@ -62,7 +70,8 @@ struct SearchState {
   bool stop_when_found = false;          // decision mode: any exact value above the floor answers
 };
 
-void offer(SearchState& state, double value, Point from, Point to) {
+void offer(SearchState& state, double signed_value, Point from, Point to) {
+  const double value = std::max(0.0, signed_value);
   if (value > state.best) {
     state.best = value;
     state.found = true;
@@ -74,33 +83,52 @@ void offer(SearchState& state, double value, Point from, Point to) {
 bool done(const SearchState& state) { return state.stop_when_found && state.found; }
 
 struct Piece {
-  double t0, t1, f0, f1;
+  double t0, t1, f0, f1;  // f: distance to B, or signed (negative inside B) in region semantics
+  std::size_t near0, near1;  // a segment of B close to each end (from the evaluations)
 };
 
-void search_boundary(const PreparedShape& a, DistanceToShape& to_b, SearchState& state) {
+// Two bounds on max f over a piece from p0 to p1 of length L, with f = d(·, B):
+//  - Lipschitz: f is 1-Lipschitz, so max ≤ (f0 + f1 + L) / 2;
+//  - convexity: f ≤ d(·, s) for any one segment s of B, and d(·, s) is convex along a line, so
+//    max ≤ max(d(p0, s), d(p1, s)). This one is 0 when the piece lies on B, where the
+//    Lipschitz bound alone would force subdivision down to the tolerance.
+double piece_upper_bound(const PreparedShape& b, const Piece& piece, Point p0, Point p1, double length) {
+  double bound = std::max(0.0, (piece.f0 + piece.f1 + length) / 2);
+  for (std::size_t segment : {piece.near0, piece.near1}) {
+    const double convex = std::sqrt(
+        std::max(b.squared_distance_to_segment(segment, p0), b.squared_distance_to_segment(segment, p1)));
+    bound = std::min(bound, convex);
+  }
+  return bound;
+}
+
+void search_boundary(const PreparedShape& a, const PreparedShape& b, DistanceToShape& to_b, SearchState& state) {
   std::vector<Piece> stack;
   for (std::size_t i = 0; i < a.segment_count() && !done(state); ++i) {
     Point closest;
     const Point p0 = a.segment_start(i);
     const double f0 = to_b.upper_bound(p0, state.best, &closest);
+    const std::size_t near0 = to_b.last_segment();
     offer(state, f0, p0, closest);
     const double length = a.segment_length(i);
     if (length == 0) continue;
     const Point p1 = a.segment_end(i);
     const double f1 = to_b.upper_bound(p1, state.best, &closest);
     offer(state, f1, p1, closest);
-    stack.push_back({0, 1, f0, f1});
+    stack.push_back({0, 1, f0, f1, near0, to_b.last_segment()});
     while (!stack.empty() && !done(state)) {
       const Piece piece = stack.back();
       stack.pop_back();
       const double piece_length = (piece.t1 - piece.t0) * length;
-      if ((piece.f0 + piece.f1 + piece_length) / 2 <= state.best + state.tolerance) continue;
+      const Point start = a.point_on_segment(i, piece.t0), end = a.point_on_segment(i, piece.t1);
+      if (piece_upper_bound(b, piece, start, end, piece_length) <= state.best + state.tolerance) continue;
       const double t_mid = (piece.t0 + piece.t1) / 2;
       const Point mid = a.point_on_segment(i, t_mid);
       const double f_mid = to_b.upper_bound(mid, state.best, &closest);
+      const std::size_t near_mid = to_b.last_segment();
       offer(state, f_mid, mid, closest);
-      stack.push_back({piece.t0, t_mid, piece.f0, f_mid});
-      stack.push_back({t_mid, piece.t1, f_mid, piece.f1});
+      stack.push_back({piece.t0, t_mid, piece.f0, f_mid, piece.near0, near_mid});
+      stack.push_back({t_mid, piece.t1, f_mid, piece.f1, near_mid, piece.near1});
     }
   }
 }
@@ -112,19 +140,23 @@ void search_interior(const PreparedShape& a, const PreparedShape& b, const Hausd
                      SearchState& state) {
   struct Cell {
     double x, y, half, upper;
+    bool operator<(const Cell& other) const { return upper < other.upper; }
   };
+  // Best first: the cell with the largest bound is split next, so the running maximum rises
+  // early and prunes the rest (depth first can spend the budget along a boundary instead).
   DistanceToShape to_a(a, false), to_b(b, false);
   const double half = std::max(a.box.width(), a.box.height()) / 2;
-  std::vector<Cell> stack{{(a.box.min_x + a.box.max_x) / 2, (a.box.min_y + a.box.max_y) / 2, half, kInfinity}};
+  std::priority_queue<Cell> queue;
+  queue.push({(a.box.min_x + a.box.max_x) / 2, (a.box.min_y + a.box.max_y) / 2, half, kInfinity});
   std::size_t budget = options.region_cell_budget;
   Point closest;
-  while (!stack.empty() && !done(state)) {
-    const Cell cell = stack.back();
-    stack.pop_back();
-    if (cell.upper <= state.best + state.tolerance) continue;
+  while (!queue.empty() && !done(state)) {
+    const Cell cell = queue.top();
+    queue.pop();
+    if (cell.upper <= state.best + state.tolerance) break;  // every other cell is lower still
     if (budget == 0) {
-      state.unresolved_upper = std::max(state.unresolved_upper, cell.upper);
-      continue;
+      state.unresolved_upper = cell.upper;
+      break;
     }
     --budget;
     const Point c{cell.x, cell.y};
@@ -144,7 +176,7 @@ void search_interior(const PreparedShape& a, const PreparedShape& b, const Hausd
     if (upper <= state.best + state.tolerance) continue;
     const double quarter = cell.half / 2;
     for (double dx : {-quarter, quarter}) {
-      for (double dy : {-quarter, quarter}) stack.push_back({cell.x + dx, cell.y + dy, quarter, upper});
+      for (double dy : {-quarter, quarter}) queue.push({cell.x + dx, cell.y + dy, quarter, upper});
     }
   }
 }
@@ -166,7 +198,7 @@ SearchState directed_search(const PreparedShape& a, const PreparedShape& b, cons
   state.tolerance = tolerance_for(a, b, options);
   state.stop_when_found = stop_when_found;
   DistanceToShape to_b(b, options.region_semantics);
-  search_boundary(a, to_b, state);
+  search_boundary(a, b, to_b, state);
   if (options.region_semantics && a.kind == ShapeKind::polygon && !done(state)) {
     search_interior(a, b, options, state);
   }

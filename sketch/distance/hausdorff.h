@@ -7,8 +7,11 @@
 // maximum may lie inside a segment.
 //
 // Method: along a segment of A, f(t) = d(A(t), B) is 1-Lipschitz, so over a piece of length L
-// with end values f0, f1 the maximum is at most (f0 + f1 + L) / 2. Pieces whose bound cannot
-// beat the best value found are discarded, others are halved (branch and bound). Evaluating
+// with end values f0, f1 the maximum is at most (f0 + f1 + L) / 2; and f ≤ d(·, s) for any one
+// segment s of B, which is convex along the piece, so the maximum is also at most the larger
+// of d(p0, s), d(p1, s) (this keeps shapes lying on each other, e.g. duplicates, cheap).
+// Pieces whose bound cannot beat the best value found are discarded, others are halved
+// (branch and bound). Evaluating
 // f stops scanning B as soon as a segment closer than the running maximum is found (the early
 // break of Taha & Hanbury, IEEE TPAMI 37(11), 2015), starting from the segment that was nearest
 // for the previous point. The returned value is attained at the witness points, and the true
@@ -18,8 +21,10 @@
 //
 // Region semantics (option): a polygon stands for its filled region, so the distance from a
 // point inside it to it is 0, and the supremum for a polygon A runs over its interior too. The
-// interior search is a 2D branch and bound with a cell budget; if the budget runs out the
-// result says so (converged = false) and gives the interval it proved.
+// interior search is a best-first 2D branch and bound with a cell budget; if the budget runs
+// out the result says so (converged = false) and gives the interval it proved. Known weak
+// case: where the boundaries of A and B coincide along a stretch, cells along it keep bounds
+// near their size and the budget can run out; the value is still attained, only unproven.
 #pragma once
 
 #include "sketch/distance/prepared_shape.h"
@@ -30,7 +35,7 @@ namespace waymark {
 struct HausdorffOptions {
   bool region_semantics = false;
   double relative_tolerance = 1e-9;
-  std::size_t region_cell_budget = 200'000;  // region semantics only
+  std::size_t region_cell_budget = 20'000;  // region semantics only
 };
 
 struct DistanceResult {

@@ -46,6 +46,7 @@ struct Box {
   double width() const { return max_x - min_x; }
   double height() const { return max_y - min_y; }
   double diagonal() const;
+  friend bool operator==(const Box&, const Box&) = default;
 };
 
 // Bounding box of all vertices. Precondition: the shape has at least one vertex.

@@ -1,0 +1,230 @@
+// Parsers and writers: valid input, invalid input with its exact message and position, and
+// round trips. Expected values are worked out by hand from the input text (byte offsets are
+// counted from 0, columns from 1).
+#include <catch2/catch.hpp>
+#include <cmath>
+
+#include "sketch/geometry/formats.h"
+
+using namespace waymark;
+
+namespace {
+
+Shape parsed(std::string_view text, ShapeFormat format = ShapeFormat::automatic) {
+  Result<Shape> shape = parse_shape(text, format);
+  INFO(text << " -> " << shape.status().to_string());
+  REQUIRE(shape.is_ok());
+  return *shape;
+}
+
+Status error_of(std::string_view text, ShapeFormat format = ShapeFormat::automatic, ParseOptions options = {}) {
+  Result<Shape> shape = parse_shape(text, format, options);
+  REQUIRE_FALSE(shape.is_ok());
+  return shape.status();
+}
+
+}  // namespace
+
+TEST_CASE("WktLinestringKeepsVerticesInOrder") {
+  const Shape s = parsed("LINESTRING (0 0, 10 0, 10 5.5)");
+  CHECK(s.kind == ShapeKind::polyline);
+  REQUIRE(s.parts.size() == 1);
+  CHECK(s.parts[0] == Path{{0, 0}, {10, 0}, {10, 5.5}});
+}
+
+TEST_CASE("WktKeywordsAreCaseInsensitiveAndMultipointTakesBothForms") {
+  CHECK(parsed("multipoint ((1 2), (3 4))") == parsed("MultiPoint (1 2, 3 4)"));
+  CHECK(parsed("POINT(1e3 -2.5E-1)").parts[0] == Path{{1000, -0.25}});
+}
+
+TEST_CASE("WktPolygonDropsClosingVertexAndGroupsHoles") {
+  const Shape s = parsed("MULTIPOLYGON (((0 0, 4 0, 4 4, 0 0), (1 1, 2 1, 2 2, 1 1)), ((5 5, 6 5, 6 6, 5 5)))");
+  CHECK(s.kind == ShapeKind::polygon);
+  REQUIRE(s.parts.size() == 3);
+  CHECK(s.parts[0] == Path{{0, 0}, {4, 0}, {4, 4}});
+  CHECK(s.polygon_of_ring == std::vector<std::uint32_t>{0, 0, 1});
+}
+
+TEST_CASE("WktOpenRingIsRejectedAtItsStart") {
+  // The ring's "(" is byte 9 of the text.
+  const Status s = error_of("POLYGON ((0 0, 1 0, 1 1))");
+  CHECK(s.message() == "polygon ring is not closed: its last vertex must repeat its first");
+  CHECK(s.where() == "line 1, column 10 (byte 9)");
+}
+
+TEST_CASE("WktEmptyAndUnsupportedTypesAreRejected") {
+  Status s = error_of("POINT EMPTY");
+  CHECK(s.message() == "EMPTY geometries are not supported");
+  CHECK(s.where() == "line 1, column 7 (byte 6)");
+  s = error_of("GEOMETRYCOLLECTION (POINT (1 2))");
+  CHECK(s.message().rfind("unsupported WKT type 'GEOMETRYCOLLECTION'", 0) == 0);
+  CHECK(s.where() == "line 1, column 1 (byte 0)");
+  s = error_of("POINT Z (1 2 3)");
+  CHECK(s.message() == "coordinates with Z are not supported (2D only)");
+  s = error_of("POINT (1 2 3)");
+  CHECK(s.message() == "a third coordinate was given; only 2D coordinates are supported");
+}
+
+TEST_CASE("WktErrorPositionCountsLines") {
+  // Second line "  10 x)": the 'x' is column 6, byte 17 + 5 = 22.
+  const Status s = error_of("LINESTRING (0 0,\n  10 x)");
+  CHECK(s.message() == "expected a number, found 'x'");
+  CHECK(s.where() == "line 2, column 6 (byte 22)");
+}
+
+TEST_CASE("WktNonFiniteNumbersAreRejected") {
+  CHECK(error_of("POINT (nan 1)").message() == "expected a number, found 'n'");
+  CHECK(error_of("POINT (-inf 1)").message() == "expected a number, found '-'");
+  const Status s = error_of("POINT (1e999 1)");
+  CHECK(s.message() == "coordinate is not a finite number");
+  CHECK(s.where() == "line 1, column 8 (byte 7)");
+}
+
+TEST_CASE("ShortStrokesAndFlatRingsAreRejected") {
+  CHECK(error_of("LINESTRING (1 1, 1 1)").message() == "a polyline stroke needs at least two distinct vertices");
+  CHECK(error_of("POLYGON ((0 0, 1 1, 2 2, 0 0))").message() ==
+        "a polygon ring needs at least three distinct vertices and non-zero area");
+}
+
+TEST_CASE("VertexLimitIsEnforcedWhileReading") {
+  ParseOptions options;
+  options.limits.max_vertices = 3;
+  const Status s = error_of("LINESTRING (0 0, 1 0, 2 0, 3 0)", ShapeFormat::wkt, options);
+  CHECK(s.code() == StatusCode::resource_exhausted);
+  CHECK(s.message() == "more than 3 vertices");
+}
+
+TEST_CASE("TrailingTextIsRejected") {
+  const Status s = error_of("POINT (1 2) extra");
+  CHECK(s.message() == "unexpected text after the geometry: 'e'");
+  CHECK(s.where() == "line 1, column 13 (byte 12)");
+}
+
+TEST_CASE("GeoJsonGeometryAndFeatureAreRead") {
+  const Shape line = parsed(R"({"type":"LineString","coordinates":[[0,0],[3,4]]})");
+  CHECK(line.parts[0] == Path{{0, 0}, {3, 4}});
+  const Shape feature = parsed(R"({"type":"Feature","properties":{},"geometry":{"type":"Polygon",
+      "coordinates":[[[0,0],[2,0],[2,2],[0,0]]]}})");
+  CHECK(feature.kind == ShapeKind::polygon);
+  CHECK(feature.parts[0].size() == 3);
+}
+
+TEST_CASE("GeoJsonErrorsNameTheJsonPath") {
+  Status s = error_of(R"({"type":"MultiLineString","coordinates":[[[0,0],[1,1]],[[0,0],[1,"a"]]]})");
+  CHECK(s.message() == "expected a number");
+  CHECK(s.where() == "$.coordinates[1][1][1]");
+  s = error_of(R"({"type":"Polygon","coordinates":[[[0,0],[2,0],[2,2]]]})");
+  CHECK(s.message() == "polygon ring is not closed: its last position must repeat its first");
+  CHECK(s.where() == "$.coordinates[0]");
+  s = error_of(R"({"type":"Point","coordinates":[1,2,3]})");
+  CHECK(s.message() == "only 2D positions [x, y] are supported");
+  s = error_of(R"({"type":"GeometryCollection","geometries":[]})");
+  CHECK(s.where() == "$.type");
+  s = error_of(R"({"type":"LineString","coordinates":[]})");
+  CHECK(s.message() == "empty geometries are not supported");
+}
+
+TEST_CASE("MalformedJsonReportsItsPosition") {
+  const Status s = error_of("{\"type\": \"Point\",\n \"coordinates\": [1, 2,]}");
+  CHECK(s.message().rfind("invalid JSON: ", 0) == 0);
+  CHECK(s.where().rfind("line 2, column", 0) == 0);
+}
+
+TEST_CASE("PointArraysGiveOneOrSeveralStrokes") {
+  CHECK(parsed("[[0,0],[1,1],[2,0]]").parts.size() == 1);
+  const Shape strokes = parsed("[[[0,0],[1,1]],[[5,5],[6,5]]]");
+  CHECK(strokes.kind == ShapeKind::polyline);
+  CHECK(strokes.parts.size() == 2);
+  CHECK(error_of("[[[0,0],[1,1]],[[5,5],\"x\"]]").where() == "$[1][1]");
+}
+
+TEST_CASE("SvgAbsoluteAndRelativeLines") {
+  // M 10 10 h 5 v 5 L 0 0 l 1 -1: vertices worked out by hand.
+  const Shape s = parsed("M 10 10 h 5 v 5 L 0 0 l 1 -1");
+  CHECK(s.kind == ShapeKind::polyline);
+  CHECK(s.parts[0] == Path{{10, 10}, {15, 10}, {15, 15}, {0, 0}, {1, -1}});
+  // Implicit lineto after moveto, compact number syntax "1.5.5" = 1.5, 0.5 (SVG 1.1 §8.3.9 grammar).
+  CHECK(parsed("m1 1 2 0-1.5.5").parts[0] == Path{{1, 1}, {3, 1}, {1.5, 1.5}});
+}
+
+TEST_CASE("SvgClosedSubpathsMakeAPolygon") {
+  const Shape s = parsed("M0 0 L4 0 L4 4 Z M10 10 l1 0 l0 1 z");
+  CHECK(s.kind == ShapeKind::polygon);
+  REQUIRE(s.parts.size() == 2);
+  CHECK(s.parts[0] == Path{{0, 0}, {4, 0}, {4, 4}});
+  CHECK(s.polygon_of_ring == std::vector<std::uint32_t>{0, 1});
+  // One open subpath makes the whole path a polyline; the closed one keeps its closing vertex.
+  const Shape mixed = parsed("M0 0 L4 0 L4 4 Z M10 10 L11 10");
+  CHECK(mixed.kind == ShapeKind::polyline);
+  CHECK(mixed.parts[0] == Path{{0, 0}, {4, 0}, {4, 4}, {0, 0}});
+}
+
+TEST_CASE("SvgCurvesStayWithinTheTolerance") {
+  ParseOptions options;
+  options.curve_tolerance = 1e-3;
+  // Quadratic M0 0 Q 5 10 10 0: y(t) = 20 t (1 − t), apex y = 5 at x = 5 (by hand).
+  Result<Shape> quad = parse_svg_path("M0 0 Q 5 10 10 0", options);
+  REQUIRE(quad.is_ok());
+  double apex = 0;
+  for (const Point& p : quad->parts[0]) apex = std::max(apex, p.y);
+  CHECK(apex <= 5.0);
+  CHECK(apex >= 5.0 - 1e-3);
+  // Half circle of radius 5 from (0,0) to (10,0): every vertex on the circle around (5,0).
+  Result<Shape> arc = parse_svg_path("M0 0 A 5 5 0 0 1 10 0", options);
+  REQUIRE(arc.is_ok());
+  for (const Point& p : arc->parts[0]) CHECK(std::hypot(p.x - 5, p.y) == Approx(5).margin(1e-9));
+  CHECK(arc->parts[0].back() == Point{10, 0});
+  // Smooth cubic reflection: "S" mirrors the previous second control point (SVG 1.1 §8.3.6).
+  Result<Shape> smooth = parse_svg_path("M0 0 C 0 1 1 1 1 0 S 2 -1 2 0", options);
+  Result<Shape> explicit_form = parse_svg_path("M0 0 C 0 1 1 1 1 0 C 1 -1 2 -1 2 0", options);
+  REQUIRE(smooth.is_ok());
+  REQUIRE(explicit_form.is_ok());
+  CHECK(smooth->parts == explicit_form->parts);
+}
+
+TEST_CASE("SvgArcWithTooSmallRadiiIsScaledUp") {
+  // SVG 1.1 F.6.6: radii 1 are too small for endpoints 10 apart, so they grow to 5.
+  Result<Shape> arc = parse_svg_path("M0 0 A 1 1 0 0 1 10 0");
+  REQUIRE(arc.is_ok());
+  for (const Point& p : arc->parts[0]) CHECK(std::hypot(p.x - 5, p.y) == Approx(5).margin(1e-9));
+}
+
+TEST_CASE("SvgErrorsSayWhatAndWhere") {
+  Status s = error_of("M 0 0 L 1", ShapeFormat::svg_path);
+  CHECK(s.message() == "expected a number for the 'L' command, found end of input");
+  CHECK(s.where() == "line 1, column 10 (byte 9)");
+  s = error_of("L 0 0", ShapeFormat::svg_path);
+  CHECK(s.message() == "path data must start with a moveto command (M or m)");
+  s = error_of("M 0 0 X 1 1", ShapeFormat::svg_path);
+  CHECK(s.message() == "unknown path command 'X'");
+  CHECK(s.where() == "line 1, column 7 (byte 6)");
+  s = error_of("M0 0 A 1 1 0 2 1 3 3", ShapeFormat::svg_path);
+  CHECK(s.message() == "expected an arc flag 0 or 1 for the 'A' command, found '2'");
+  CHECK(error_of("M 5 5", ShapeFormat::svg_path).message() == "path data draws nothing (no segment after a moveto)");
+}
+
+TEST_CASE("WritersRoundTrip") {
+  const char* inputs[] = {
+      "POINT (1.25 -3)",
+      "MULTIPOINT ((0 0), (0.1 0.2), (1e-300 7))",
+      "LINESTRING (0.1 0.2, 0.30000000000000004 1, 5 5)",
+      "MULTILINESTRING ((0 0, 1 1), (2 2, 3 3, 4 2))",
+      "POLYGON ((0 0, 10 0, 10 10, 0 10, 0 0), (2 2, 3 2, 3 3, 2 2))",
+      "MULTIPOLYGON (((0 0, 1 0, 1 1, 0 0)), ((5 5, 6 5, 6 6, 5 5), (5.2 5.1, 5.8 5.1, 5.8 5.7, 5.2 5.1)))",
+  };
+  for (const char* input : inputs) {
+    const Shape shape = parsed(input);
+    INFO(input);
+    CHECK(parsed(to_wkt(shape), ShapeFormat::wkt) == shape);
+    CHECK(parsed(to_geojson(shape), ShapeFormat::geojson) == shape);
+  }
+  CHECK(to_wkt(parsed("MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))")) == "MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))");
+}
+
+TEST_CASE("FramesCenterAndScale") {
+  const Shape s = parsed("LINESTRING (10 20, 14 22)");
+  CHECK(apply_frame(s, Frame::absolute) == s);
+  CHECK(apply_frame(s, Frame::centered).parts[0] == Path{{-2, -1}, {2, 1}});
+  CHECK(apply_frame(s, Frame::unit).parts[0] == Path{{-0.5, -0.25}, {0.5, 0.25}});
+  CHECK(apply_frame(parsed("POINT (3 4)"), Frame::unit).parts[0] == Path{{0, 0}});
+}

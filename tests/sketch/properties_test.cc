@@ -1,0 +1,116 @@
+// Properties over thousands of seeded random shapes: metric axioms, the order
+// d_H ≤ d_F ≤ discrete d_F, the sketch lower bound, and decisions agreeing with values.
+#include <catch2/catch.hpp>
+#include <cmath>
+
+#include "sketch/distance/bounds.h"
+#include "sketch/distance/frechet.h"
+#include "sketch/distance/hausdorff.h"
+#include "sketch/landmarks/sketcher.h"
+#include "support/random_shapes.h"
+
+using namespace waymark;
+
+namespace {
+
+Shape random_shape(SeededRandom& random) {
+  switch (random.below(3)) {
+    case 0: return testing::random_walk(random, 2 + random.below(30), 1.5);
+    case 1: return testing::random_points(random, 1 + random.below(20));
+    default: return testing::random_star_polygon(random, 3 + random.below(15));
+  }
+}
+
+}  // namespace
+
+TEST_CASE("HausdorffIsSymmetricAndObeysTheTriangleInequality") {
+  SeededRandom random(31);
+  for (int trial = 0; trial < 1500; ++trial) {
+    const Shape a = random_shape(random), b = random_shape(random), c = random_shape(random);
+    const double ab = hausdorff(a, b).value, ba = hausdorff(b, a).value;
+    const double bc = hausdorff(b, c).value, ac = hausdorff(a, c).value;
+    const double tolerance = 1e-8 * 30;
+    CHECK(std::fabs(ab - ba) <= tolerance);
+    CHECK(ac <= ab + bc + tolerance);
+    CHECK(bounding_box_lower_bound(bounding_box(a), bounding_box(b)) <= ab + 1e-12);
+  }
+}
+
+TEST_CASE("HausdorffAtMostFrechetAtMostDiscreteFrechet") {
+  SeededRandom random(32);
+  for (int trial = 0; trial < 600; ++trial) {
+    const Shape a = testing::random_walk(random, 2 + random.below(25), 1.5);
+    const Shape b = testing::random_walk(random, 2 + random.below(25), 1.5);
+    const double h = hausdorff(a, b).value;
+    const double f = frechet(a, b)->value;
+    const double d = discrete_frechet(a, b)->value;
+    const double tolerance = 1e-8;
+    CHECK(h <= f + tolerance);
+    CHECK(f <= d + tolerance);
+    CHECK(std::fabs(f - frechet(b, a)->value) <= tolerance);
+    const Path& pa = a.parts[0];
+    const Path& pb = b.parts[0];
+    CHECK(frechet_endpoint_lower_bound(pa.front(), pa.back(), pb.front(), pb.back()) <= f + tolerance);
+  }
+}
+
+TEST_CASE("FrechetTriangleInequality") {
+  SeededRandom random(33);
+  for (int trial = 0; trial < 300; ++trial) {
+    const Shape a = testing::random_walk(random, 2 + random.below(15));
+    const Shape b = testing::random_walk(random, 2 + random.below(15));
+    const Shape c = testing::random_walk(random, 2 + random.below(15));
+    CHECK(frechet(a, c)->value <= frechet(a, b)->value + frechet(b, c)->value + 1e-8);
+  }
+}
+
+TEST_CASE("DecisionsAgreeWithValues") {
+  SeededRandom random(34);
+  for (int trial = 0; trial < 800; ++trial) {
+    const Shape a = testing::random_walk(random, 2 + random.below(30));
+    const Shape b = testing::random_walk(random, 2 + random.below(30));
+    const double f = frechet(a, b)->value;
+    const double h = hausdorff(a, b).value;
+    INFO("trial " << trial << ": frechet " << f << ", hausdorff " << h);
+    CHECK(*frechet_at_most(a, b, f * (1 + 1e-7) + 1e-9));
+    CHECK_FALSE(*frechet_at_most(a, b, f * (1 - 1e-7) - 1e-9));
+    const PreparedShape pa(a), pb(b);
+    CHECK(hausdorff_at_most(pa, pb, h * (1 + 1e-7) + 1e-9));
+    CHECK_FALSE(hausdorff_at_most(pa, pb, h * (1 - 1e-7) - 1e-9));
+  }
+}
+
+TEST_CASE("SketchLowerBoundNeverExceedsHausdorff") {
+  for (LandmarkLayout layout : {LandmarkLayout::grid, LandmarkLayout::random}) {
+    const Box domain{-2, -2, 12, 12};
+    Result<LandmarkSet> set = layout == LandmarkLayout::grid ? grid_landmarks(domain, 64) : random_landmarks(domain, 64, 4);
+    REQUIRE(set.is_ok());
+    const Sketcher sketcher(*set);
+    SeededRandom random(35);
+    for (int trial = 0; trial < 1500; ++trial) {
+      const Shape a = random_shape(random), b = random_shape(random);
+      const std::vector<float> sa = sketcher.sketch(a), sb = sketcher.sketch(b);
+      const double bound = sketcher.linf_lower_bound(sa, sb);
+      const double h = hausdorff(a, b).value;
+      CHECK(bound <= h + 1e-12);
+      // With uniform weights the weighted L2 is a root mean square, never above the maximum.
+      CHECK(Sketcher::weighted_distance(sa, sb) <= h * (1 + 1e-6) + 1e-9);
+    }
+  }
+}
+
+TEST_CASE("RegionSketchLowerBoundNeverExceedsRegionHausdorff") {
+  Result<LandmarkSet> set = random_landmarks({-2, -2, 18, 18}, 48, 8);
+  REQUIRE(set.is_ok());
+  const Sketcher sketcher(*set, true);
+  HausdorffOptions region;
+  region.region_semantics = true;
+  SeededRandom random(36);
+  for (int trial = 0; trial < 300; ++trial) {
+    const Shape a = testing::random_star_polygon(random, 3 + random.below(10));
+    const Shape b = random.below(2) ? testing::random_star_polygon(random, 3 + random.below(10))
+                                    : testing::random_points(random, 1 + random.below(5));
+    const DistanceResult r = hausdorff(a, b, region);
+    CHECK(sketcher.linf_lower_bound(sketcher.sketch(a), sketcher.sketch(b)) <= r.upper_bound + 1e-12);
+  }
+}
