@@ -1,9 +1,12 @@
 // Discrete Fréchet distance (Eiter & Mannila 1994), one row of the coupling table at a time.
-// Works on squared distances (monotone, so min/max commute with the square root) and carries,
-// for every cell, the vertex pair that sets its value: the witness of the bottleneck.
+//
+// Works on squared distances (monotone, so min/max commute with the square root). The cell
+// recurrence c(i,j) = max(d(i,j), min(c(i−1,j−1), c(i−1,j), c(i,j−1))) is a serial chain along
+// a row; min(c(i−1,j−1), c(i−1,j)) is taken off that chain so each step waits for one min and
+// one max only. The witness is found afterwards: the value is the squared distance of some
+// vertex pair, and the first pair at exactly that distance is reported.
 #include <algorithm>
 #include <cmath>
-#include <cstdint>
 #include <vector>
 
 #include "sketch/distance/frechet.h"
@@ -12,45 +15,49 @@ namespace waymark {
 
 DistanceResult discrete_frechet(const Path& p, const Path& q) {
   const std::size_t n = p.size(), m = q.size();
-  struct Cell {
-    double value;         // squared coupling distance of the prefix pair
-    std::uint32_t i, j;   // the pair that attains it
-  };
-  thread_local std::vector<Cell> row;  // row[j] holds cell (i − 1, j) until overwritten by (i, j)
+  thread_local std::vector<double> row;  // row[j] holds c(i − 1, j) until overwritten by c(i, j)
+  thread_local std::vector<double> q_x, q_y;
   row.resize(m);
-  auto d2 = [&](std::size_t i, std::size_t j) {
-    const double dx = p[i].x - q[j].x, dy = p[i].y - q[j].y;
+  q_x.resize(m);
+  q_y.resize(m);
+  for (std::size_t j = 0; j < m; ++j) {
+    q_x[j] = q[j].x;
+    q_y[j] = q[j].y;
+  }
+  auto d2 = [&](Point a, std::size_t j) {
+    const double dx = a.x - q_x[j], dy = a.y - q_y[j];
     return dx * dx + dy * dy;
   };
-  auto combine = [](const Cell& reached, double here, std::size_t i, std::size_t j) {
-    return here >= reached.value ? Cell{here, static_cast<std::uint32_t>(i), static_cast<std::uint32_t>(j)} : reached;
-  };
-  row[0] = {d2(0, 0), 0, 0};
-  for (std::size_t j = 1; j < m; ++j) row[j] = combine(row[j - 1], d2(0, j), 0, j);
+  double left = d2(p[0], 0);
+  row[0] = left;
+  for (std::size_t j = 1; j < m; ++j) row[j] = left = std::max(left, d2(p[0], j));
   for (std::size_t i = 1; i < n; ++i) {
-    Cell diagonal = row[0];
-    row[0] = combine(row[0], d2(i, 0), i, 0);
     const Point pi = p[i];
+    double diagonal = row[0];
+    left = row[0] = std::max(row[0], d2(pi, 0));
     for (std::size_t j = 1; j < m; ++j) {
-      const Cell up = row[j];
-      const Cell& left = row[j - 1];
-      const Cell* best = &diagonal;
-      if (up.value < best->value) best = &up;
-      if (left.value < best->value) best = &left;
-      const double dx = pi.x - q[j].x, dy = pi.y - q[j].y;
-      const double here = dx * dx + dy * dy;
-      const Cell next = combine(*best, here, i, j);
+      const double up = row[j];
+      const double reached = std::min(diagonal, up);  // independent of `left`
       diagonal = up;
-      row[j] = next;
+      left = std::max(std::min(reached, left), d2(pi, j));
+      row[j] = left;
     }
   }
-  const Cell& end = row[m - 1];
+  const double value_squared = row[m - 1];
+
   DistanceResult result;
-  result.value = std::sqrt(end.value);
+  result.value = std::sqrt(value_squared);
   result.upper_bound = result.value;
-  result.from = p[end.i];
-  result.to = q[end.j];
-  return result;
+  for (std::size_t i = 0; i < n; ++i) {
+    for (std::size_t j = 0; j < m; ++j) {
+      if (d2(p[i], j) == value_squared) {
+        result.from = p[i];
+        result.to = q[j];
+        return result;
+      }
+    }
+  }
+  return result;  // unreachable: the value is one of the pair distances
 }
 
 }  // namespace waymark

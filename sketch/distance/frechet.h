@@ -18,7 +18,8 @@
 //   value is within that of the true distance.
 // Discrete (Eiter & Mannila, "Computing discrete Fréchet distance", TU Wien CD-TR 94/64,
 // 1994): the coupling distance over vertices only, by dynamic programming in O(n·m) time and
-// O(n + m) memory. It is an upper bound on the continuous distance.
+// O(n + m) memory. It is an upper bound on the continuous distance. Its witness is a vertex
+// pair at exactly the distance (the first in order), not necessarily on an optimal coupling.
 #pragma once
 
 #include "sketch/distance/hausdorff.h"  // DistanceResult

@@ -36,18 +36,29 @@ class DistanceToShape {
     return boundary_distance(p, threshold, closest);
   }
 
-  // Distance to B's segments only (ignores the filled region).
+  // Distance to B's segments only (ignores the filled region). Scans outward from the hint in
+  // both directions: consecutive points of A are usually nearest to neighbouring segments.
   double boundary_distance(Point p, double threshold, Point* closest) {
     const std::size_t n = target_.segment_count();
     const double threshold_squared = threshold > 0 ? threshold * threshold : -1;
-    double best_squared = kInfinity;
+    double best_squared = target_.squared_distance_to_segment(hint_, p);
     std::size_t best = hint_;
-    for (std::size_t k = 0, i = hint_; k < n; ++k, i = (i + 1 == n) ? 0 : i + 1) {
+    auto consider = [&](std::size_t i) {
       const double d2 = target_.squared_distance_to_segment(i, p);
       if (d2 < best_squared) {
         best_squared = d2;
         best = i;
-        if (d2 <= threshold_squared) break;
+      }
+      return best_squared <= threshold_squared;
+    };
+    if (best_squared > threshold_squared) {
+      // forward and backward indices, wrapped without division
+      std::size_t forward = hint_, backward = hint_;
+      for (std::size_t step = 1; 2 * step <= n; ++step) {
+        forward = forward + 1 == n ? 0 : forward + 1;
+        backward = backward == 0 ? n - 1 : backward - 1;
+        if (consider(forward)) break;
+        if (2 * step < n && consider(backward)) break;
       }
     }
     hint_ = best;

@@ -38,14 +38,6 @@ PreparedShape::PreparedShape(const Shape& shape)
 
 double PreparedShape::segment_length(std::size_t i) const { return std::hypot(delta_x[i], delta_y[i]); }
 
-double PreparedShape::squared_distance_to_segment(std::size_t i, Point p, Point* closest) const {
-  const double px = p.x - start_x[i], py = p.y - start_y[i];
-  const double t = std::clamp((px * delta_x[i] + py * delta_y[i]) * inverse_length_squared[i], 0.0, 1.0);
-  const double ex = px - t * delta_x[i], ey = py - t * delta_y[i];
-  if (closest) *closest = point_on_segment(i, t);
-  return ex * ex + ey * ey;
-}
-
 bool PreparedShape::contains(Point p) const {
   if (kind != ShapeKind::polygon) return false;
   if (p.x < box.min_x || p.x > box.max_x || p.y < box.min_y || p.y > box.max_y) return false;

@@ -34,8 +34,16 @@ struct PreparedShape {
     return {start_x[i] + fraction * delta_x[i], start_y[i] + fraction * delta_y[i]};
   }
 
-  // Squared distance from p to segment i and the closest point on it. O(1).
-  double squared_distance_to_segment(std::size_t i, Point p, Point* closest = nullptr) const;
+  // Squared distance from p to segment i and the closest point on it. O(1). Inline: it is the
+  // innermost operation of every distance algorithm.
+  double squared_distance_to_segment(std::size_t i, Point p, Point* closest = nullptr) const {
+    const double px = p.x - start_x[i], py = p.y - start_y[i];
+    double t = (px * delta_x[i] + py * delta_y[i]) * inverse_length_squared[i];
+    t = t < 0 ? 0 : (t > 1 ? 1 : t);
+    const double ex = px - t * delta_x[i], ey = py - t * delta_y[i];
+    if (closest) *closest = point_on_segment(i, t);
+    return ex * ex + ey * ey;
+  }
 
   // For polygons: whether p lies in the filled region (even–odd rule over all rings, so holes
   // are excluded; points exactly on the boundary count as either). Always false for other
