@@ -22,12 +22,11 @@ void nearest_to_segment(const double* __restrict x, const double* __restrict y, 
                         std::size_t count, double ax, double ay, double dx, double dy, double inverse_length_squared) {
   for (std::size_t k = 0; k < count; ++k) {
     const double px = x[k] - ax, py = y[k] - ay;
-    double t = (px * dx + py * dy) * inverse_length_squared;
-    t = t < 0 ? 0 : t;
-    t = t > 1 ? 1 : t;
+    // std::max(0, t), std::min(1, t), std::min(best, d) match maxpd/minpd exactly (NaN
+    // included), so every clone if-converts; a plain ternary does not vectorise without AVX-512.
+    const double t = std::min(1.0, std::max(0.0, (px * dx + py * dy) * inverse_length_squared));
     const double ex = px - t * dx, ey = py - t * dy;
-    const double d = ex * ex + ey * ey;
-    best[k] = d < best[k] ? d : best[k];
+    best[k] = std::min(best[k], ex * ex + ey * ey);
   }
 }
 
