@@ -29,12 +29,6 @@ Interval free_interval(Point a, Point b, Point c, double epsilon_squared) {
 
 double squared_distance(Point a, Point b) { return (a.x - b.x) * (a.x - b.x) + (a.y - b.y) * (a.y - b.y); }
 
-Point closest_on_segment(Point a, Point b, Point p) {
-  const double dx = b.x - a.x, dy = b.y - a.y;
-  const double t = std::clamp(((p.x - a.x) * dx + (p.y - a.y) * dy) / (dx * dx + dy * dy), 0.0, 1.0);
-  return {a.x + t * dx, a.y + t * dy};
-}
-
 double scale_of(const Path& p, const Path& q) {
   double extent = 0;
   for (const Path* path : {&p, &q}) {
@@ -43,40 +37,71 @@ double scale_of(const Path& p, const Path& q) {
   return std::max(extent, 1e-300);
 }
 
+// A curve's segments with what the candidate scans reuse: inverse squared lengths, boxes.
+struct Segments {
+  explicit Segments(const Path& path) {
+    for (std::size_t j = 0; j + 1 < path.size(); ++j) {
+      const Point a = path[j], b = path[j + 1];
+      const double dx = b.x - a.x, dy = b.y - a.y;
+      start.push_back(a);
+      delta.push_back({dx, dy});
+      inverse_length_squared.push_back(1 / (dx * dx + dy * dy));  // no repeated vertices (curve_of)
+      box.push_back({std::min(a.x, b.x), std::min(a.y, b.y), std::max(a.x, b.x), std::max(a.y, b.y)});
+    }
+  }
+  std::size_t size() const { return start.size(); }
+  // Is v within `reach` of segment j's box? (A cheap necessary condition for being that close.)
+  bool near_box(std::size_t j, Point v, double reach) const {
+    return v.x >= box[j].min_x - reach && v.x <= box[j].max_x + reach && v.y >= box[j].min_y - reach &&
+           v.y <= box[j].max_y + reach;
+  }
+  Point closest(std::size_t j, Point v) const {
+    const double t = std::clamp(((v.x - start[j].x) * delta[j].x + (v.y - start[j].y) * delta[j].y) *
+                                    inverse_length_squared[j], 0.0, 1.0);
+    return {start[j].x + t * delta[j].x, start[j].y + t * delta[j].y};
+  }
+  std::vector<Point> start, delta;
+  std::vector<double> inverse_length_squared;
+  std::vector<Box> box;
+};
+
 struct Candidate {
   double value;
   Point from, to;  // from on P, to on Q
   bool operator<(const Candidate& other) const { return value < other.value; }
 };
 
-// Vertex-to-segment distances strictly between lo and hi (type B critical values).
-void collect_vertex_segment(const Path& vertices, const Path& segments, bool vertices_on_p, double lo, double hi,
+// Vertex-to-segment distances in (lo, hi] (type B critical values).
+void collect_vertex_segment(const Path& vertices, const Segments& segments, bool vertices_on_p, double lo, double hi,
                             std::vector<Candidate>& out) {
   const double lo2 = lo * lo, hi2 = hi * hi;
-  for (const Point& v : vertices) {
-    for (std::size_t j = 0; j + 1 < segments.size(); ++j) {
-      const Point c = closest_on_segment(segments[j], segments[j + 1], v);
+  for (std::size_t j = 0; j < segments.size(); ++j) {
+    for (const Point& v : vertices) {
+      if (!segments.near_box(j, v, hi)) continue;
+      const Point c = segments.closest(j, v);
       const double d2 = squared_distance(v, c);
-      if (d2 > lo2 && d2 < hi2) {
+      if (d2 > lo2 && d2 <= hi2) {
         out.push_back(vertices_on_p ? Candidate{std::sqrt(d2), v, c} : Candidate{std::sqrt(d2), c, v});
       }
     }
   }
 }
 
-// Points of a segment equidistant from two vertices of the other curve, with that distance
-// strictly between lo and hi (type C critical values).
-void collect_equidistant(const Path& vertices, const Path& segments, bool vertices_on_p, double lo, double hi,
+// Points of a segment equidistant from two vertices of the other curve, with that distance in
+// (lo, hi] (type C critical values). Both vertices are then within hi of the segment.
+void collect_equidistant(const Path& vertices, const Segments& segments, bool vertices_on_p, double lo, double hi,
                          std::vector<Candidate>& out) {
   const double hi2 = hi * hi;
-  std::vector<std::size_t> near;
-  for (std::size_t j = 0; j + 1 < segments.size(); ++j) {
-    const Point a = segments[j], b = segments[j + 1];
+  thread_local std::vector<std::size_t> near;
+  for (std::size_t j = 0; j < segments.size(); ++j) {
+    const Point a = segments.start[j];
+    const double dx = segments.delta[j].x, dy = segments.delta[j].y;
     near.clear();
     for (std::size_t k = 0; k < vertices.size(); ++k) {
-      if (squared_distance(vertices[k], closest_on_segment(a, b, vertices[k])) < hi2) near.push_back(k);
+      if (segments.near_box(j, vertices[k], hi) && squared_distance(vertices[k], segments.closest(j, vertices[k])) <= hi2) {
+        near.push_back(k);
+      }
     }
-    const double dx = b.x - a.x, dy = b.y - a.y;
     for (std::size_t x = 0; x < near.size(); ++x) {
       for (std::size_t y = x + 1; y < near.size(); ++y) {
         const Point pk = vertices[near[x]], pl = vertices[near[y]];
@@ -86,7 +111,7 @@ void collect_equidistant(const Path& vertices, const Path& segments, bool vertic
         if (t < 0 || t > 1) continue;
         const Point on_segment{a.x + t * dx, a.y + t * dy};
         const double value = std::sqrt(squared_distance(on_segment, pk));
-        if (value > lo && value < hi) {
+        if (value > lo && value <= hi) {
           out.push_back(vertices_on_p ? Candidate{value, pk, on_segment} : Candidate{value, on_segment, pk});
         }
       }
@@ -94,22 +119,25 @@ void collect_equidistant(const Path& vertices, const Path& segments, bool vertic
   }
 }
 
-// Narrows (lo, hi] to the smallest candidate whose decision says yes. Expected linear work in
-// the candidate count (quickselect), plus log2(count) decisions.
-void search_candidates(const Path& p, const Path& q, double slack, std::vector<Candidate>& candidates, double& lo,
+// Narrows (lo, hi] to the smallest candidate whose decision says yes; returns whether one did.
+// Expected linear work in the candidate count (quickselect), plus log2(count) decisions.
+bool search_candidates(const Path& p, const Path& q, double slack, std::vector<Candidate>& candidates, double& lo,
                        Candidate& hi) {
+  bool found = false;
   auto begin = candidates.begin(), end = candidates.end();
   while (begin < end) {
     auto middle = begin + (end - begin) / 2;
     std::nth_element(begin, middle, end);
     if (frechet_at_most(p, q, middle->value + slack)) {
       hi = *middle;
+      found = true;
       end = middle;
     } else {
       lo = middle->value;
       begin = middle + 1;
     }
   }
+  return found;
 }
 
 Path without_repeats(const Path& path) {
@@ -202,14 +230,39 @@ DistanceResult frechet(const Path& p, const Path& q) {
   const DistanceResult discrete = discrete_frechet(p, q);  // an upper bound, decided yes
   double lo = endpoint.value;
   Candidate hi{discrete.value, discrete.from, discrete.to};
+  // Narrow (lo, hi] by plain bisection first: decisions below d_F fail fast, and every later
+  // scan only looks at vertex–segment pairs within the (now small) upper bound. The bound hi
+  // then need not be a critical value itself; the critical value d_F lies in (lo, hi].
+  bool hi_is_critical = true;
+  for (int step = 0; step < 6; ++step) {
+    const double middle = (lo + hi.value) / 2;
+    if (frechet_at_most(p, q, middle + slack)) {
+      hi.value = middle;
+      hi_is_critical = false;
+    } else {
+      lo = middle;
+    }
+  }
+  // Decisions were made at value + slack, so d_F ≤ hi + slack: collect candidates up to there.
+  const double bound = hi.value + slack;
+  const Segments p_segments(p), q_segments(q);
   std::vector<Candidate> candidates;
-  collect_vertex_segment(p, q, true, lo, hi.value, candidates);
-  collect_vertex_segment(q, p, false, lo, hi.value, candidates);
-  search_candidates(p, q, slack, candidates, lo, hi);
+  collect_vertex_segment(p, q_segments, true, lo, bound, candidates);
+  collect_vertex_segment(q, p_segments, false, lo, bound, candidates);
+  bool found = search_candidates(p, q, slack, candidates, lo, hi);
   candidates.clear();
-  collect_equidistant(p, q, true, lo, hi.value, candidates);
-  collect_equidistant(q, p, false, lo, hi.value, candidates);
-  search_candidates(p, q, slack, candidates, lo, hi);
+  collect_equidistant(p, q_segments, true, lo, found ? hi.value : bound, candidates);
+  collect_equidistant(q, p_segments, false, lo, found ? hi.value : bound, candidates);
+  found = search_candidates(p, q, slack, candidates, lo, hi) || found;
+  if (!found && !hi_is_critical) {
+    // No candidate decided yes: only rounding can cause this. Report the proven bracket.
+    result.converged = false;
+    result.value = lo;
+    result.upper_bound = bound;
+    result.from = discrete.from;
+    result.to = discrete.to;
+    return result;
+  }
   return finish(hi);
 }
 

@@ -42,7 +42,10 @@ TEST_CASE("HausdorffAtMostFrechetAtMostDiscreteFrechet") {
     const Shape a = testing::random_walk(random, 2 + random.below(25), 1.5);
     const Shape b = testing::random_walk(random, 2 + random.below(25), 1.5);
     const double h = hausdorff(a, b).value;
-    const double f = frechet(a, b)->value;
+    const Result<DistanceResult> continuous = frechet(a, b);
+    REQUIRE(continuous.is_ok());
+    CHECK(continuous->converged);
+    const double f = continuous->value;
     const double d = discrete_frechet(a, b)->value;
     const double tolerance = 1e-8;
     CHECK(h <= f + tolerance);
