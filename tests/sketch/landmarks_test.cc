@@ -3,6 +3,7 @@
 #include <cmath>
 #include <cstdio>
 #include <fstream>
+#include <thread>
 
 #include "sketch/distance/hausdorff.h"
 #include "sketch/geometry/formats.h"
@@ -186,4 +187,24 @@ TEST_CASE("FittedWeightsEstimateTheCandidateMean") {
     ratio_sum += estimate / exact;
   }
   CHECK(ratio_sum / fits == Approx(1).epsilon(0.05));
+}
+
+TEST_CASE("SketcherIsSafeToShareBetweenThreads") {
+  // Four threads sketch the same shapes through one Sketcher (thread-local scratch buffers);
+  // every result must equal the single-threaded one. ThreadSanitizer runs would flag races.
+  Result<LandmarkSet> set = random_landmarks({-2, -2, 12, 12}, 64, 12);
+  REQUIRE(set.is_ok());
+  const Sketcher sketcher(*set);
+  SeededRandom random(13);
+  std::vector<Shape> shapes;
+  for (int i = 0; i < 200; ++i) shapes.push_back(testing::random_walk(random, 2 + random.below(80)));
+  std::vector<float> expected(shapes.size() * 64), parallel[4];
+  sketcher.sketch_batch(shapes, expected);
+  std::vector<std::thread> threads;
+  for (auto& out : parallel) {
+    out.resize(expected.size());
+    threads.emplace_back([&] { sketcher.sketch_batch(shapes, out); });
+  }
+  for (auto& thread : threads) thread.join();
+  for (const auto& out : parallel) CHECK(out == expected);
 }
