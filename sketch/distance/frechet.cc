@@ -266,25 +266,30 @@ DistanceResult frechet(const Path& p, const Path& q) {
   return finish(hi);
 }
 
-Result<bool> frechet_at_most(const Shape& p, const Shape& q, double epsilon) {
-  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
+namespace {
+
+// Runs `compute` on the curves of p and q, or returns why a shape is not a curve.
+template <typename Compute>
+auto on_curves(const Shape& p, const Shape& q, Compute compute) -> Result<decltype(compute(Path{}, Path{}))> {
+  Result<Path> curve_p = curve_of(p);
   if (!curve_p) return curve_p.status();
+  Result<Path> curve_q = curve_of(q);
   if (!curve_q) return curve_q.status();
-  return frechet_at_most(*curve_p, *curve_q, epsilon);
+  return compute(*curve_p, *curve_q);
+}
+
+}  // namespace
+
+Result<bool> frechet_at_most(const Shape& p, const Shape& q, double epsilon) {
+  return on_curves(p, q, [epsilon](const Path& a, const Path& b) { return frechet_at_most(a, b, epsilon); });
 }
 
 Result<DistanceResult> frechet(const Shape& p, const Shape& q) {
-  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
-  if (!curve_p) return curve_p.status();
-  if (!curve_q) return curve_q.status();
-  return frechet(*curve_p, *curve_q);
+  return on_curves(p, q, [](const Path& a, const Path& b) { return frechet(a, b); });
 }
 
 Result<DistanceResult> discrete_frechet(const Shape& p, const Shape& q) {
-  Result<Path> curve_p = curve_of(p), curve_q = curve_of(q);
-  if (!curve_p) return curve_p.status();
-  if (!curve_q) return curve_q.status();
-  return discrete_frechet(*curve_p, *curve_q);
+  return on_curves(p, q, [](const Path& a, const Path& b) { return discrete_frechet(a, b); });
 }
 
 }  // namespace waymark

@@ -7,17 +7,14 @@
 #include "sketch/distance/prepared_shape.h"
 #include "sketch/geometry/formats.h"
 #include "support/geos_reference.h"
+#include "support/shape_helpers.h"
 #include "support/random_shapes.h"
 
 using namespace waymark;
+using testing::max_segment_length;
+using testing::wkt;
 
 namespace {
-
-Shape wkt(const char* text) {
-  Result<Shape> shape = parse_wkt(text);
-  REQUIRE(shape.is_ok());
-  return *shape;
-}
 
 double frechet_value(const Shape& a, const Shape& b) {
   Result<DistanceResult> r = frechet(a, b);
@@ -29,13 +26,6 @@ double discrete_value(const Shape& a, const Shape& b) {
   Result<DistanceResult> r = discrete_frechet(a, b);
   REQUIRE(r.is_ok());
   return r->value;
-}
-
-double max_segment_length(const Shape& shape) {
-  const PreparedShape prepared(shape);
-  double longest = 0;
-  for (std::size_t i = 0; i < prepared.segment_count(); ++i) longest = std::max(longest, prepared.segment_length(i));
-  return longest;
 }
 
 }  // namespace

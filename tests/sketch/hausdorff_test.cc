@@ -6,26 +6,12 @@
 #include "sketch/distance/hausdorff.h"
 #include "sketch/geometry/formats.h"
 #include "support/geos_reference.h"
+#include "support/shape_helpers.h"
 #include "support/random_shapes.h"
 
 using namespace waymark;
-
-namespace {
-
-Shape wkt(const char* text) {
-  Result<Shape> shape = parse_wkt(text);
-  REQUIRE(shape.is_ok());
-  return *shape;
-}
-
-double max_segment_length(const Shape& shape) {
-  const PreparedShape prepared(shape);
-  double longest = 0;
-  for (std::size_t i = 0; i < prepared.segment_count(); ++i) longest = std::max(longest, prepared.segment_length(i));
-  return longest;
-}
-
-}  // namespace
+using testing::max_segment_length;
+using testing::wkt;
 
 TEST_CASE("MaximumInsideASegmentIsFound") {
   // By hand: along (0 0)–(10 0) the distance to {(0 0), (10 0)} is min(x, 10 − x), largest at x = 5.
