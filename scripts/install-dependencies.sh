@@ -15,7 +15,7 @@ packages=(
   libeigen3-dev nlohmann-json3-dev libspdlog-dev libfmt-dev
   catch2 libbenchmark-dev
   libgeos-dev libgeos++-dev         # outside reference for distances (tests, benchmarks)
-  librocksdb-dev                    # embedded storage engine
+  librocksdb-dev                    # embedded storage engine (crash-safe WAL, atomic write batches)
   hershey-fonts-data                # real single-stroke glyphs for tests and evaluation
   python3-shapely python3-scipy     # outside references, run with /usr/bin/python3
   clang libclang-rt-14-dev          # sanitizer and fuzzing runtimes

@@ -1,0 +1,307 @@
+#include <rocksdb/write_batch.h>
+
+#include <cmath>
+#include <cstring>
+#include <filesystem>
+#include <nlohmann/json.hpp>
+
+#include "index/collection_state.h"
+#include "index/shape_codec.h"
+
+namespace waymark {
+namespace {
+
+using Json = nlohmann::json;
+
+constexpr const char* kManifestKey = "manifest";
+constexpr const char* kShapePrefix = "s/";
+
+Status from_rocksdb(const rocksdb::Status& status, const std::string& doing) {
+  if (status.ok()) return Status::ok();
+  const StatusCode code = status.IsCorruption() ? StatusCode::data_loss : StatusCode::io_error;
+  return Status(code, "store: " + doing + ": " + status.ToString());
+}
+
+std::string encode_record(std::int64_t label, const Shape& shape, std::span<const float> sketch,
+                          const std::string& metadata) {
+  const std::string geometry = encode_shape(shape);
+  std::string out;
+  auto put_u64 = [&](std::uint64_t v) { out.append(reinterpret_cast<const char*>(&v), sizeof v); };
+  put_u64(static_cast<std::uint64_t>(label));
+  put_u64(geometry.size());
+  out += geometry;
+  put_u64(sketch.size());
+  out.append(reinterpret_cast<const char*>(sketch.data()), sketch.size() * sizeof(float));
+  out += metadata;
+  return out;
+}
+
+Json manifest_json(const CollectionSettings& settings) {
+  return {{"format", 1},
+          {"frame", frame_name(settings.frame)},
+          {"landmarks", to_landmark_file(settings.landmarks)},
+          {"max_vertices", settings.limits.max_vertices},
+          {"max_parts", settings.limits.max_parts},
+          {"max_id_bytes", settings.max_id_bytes},
+          {"max_metadata_bytes", settings.max_metadata_bytes}};
+}
+
+Result<CollectionSettings> parse_manifest(const std::string& text) {
+  CollectionSettings settings;
+  try {
+    const Json json = Json::parse(text);
+    Result<Frame> frame = parse_frame(json.at("frame").get<std::string>());
+    if (!frame) return frame.status();
+    Result<LandmarkSet> landmarks = parse_landmark_file(json.at("landmarks").get<std::string>());
+    if (!landmarks) return landmarks.status();
+    settings.frame = *frame;
+    settings.landmarks = std::move(*landmarks);
+    settings.limits.max_vertices = json.at("max_vertices").get<std::size_t>();
+    settings.limits.max_parts = json.at("max_parts").get<std::size_t>();
+    settings.max_id_bytes = json.at("max_id_bytes").get<std::size_t>();
+    settings.max_metadata_bytes = json.at("max_metadata_bytes").get<std::size_t>();
+  } catch (const std::exception& error) {
+    return Status(StatusCode::data_loss, std::string("store: manifest is damaged: ") + error.what());
+  }
+  return settings;
+}
+
+Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory, bool create) {
+  rocksdb::Options options;
+  options.create_if_missing = create;
+  options.paranoid_checks = true;
+  rocksdb::DB* raw = nullptr;
+  if (Status s = from_rocksdb(rocksdb::DB::Open(options, directory, &raw), "opening '" + directory + "'"); !s.is_ok()) {
+    return s;
+  }
+  return std::unique_ptr<rocksdb::DB>(raw);
+}
+
+rocksdb::WriteOptions durable() {
+  rocksdb::WriteOptions options;
+  options.sync = true;  // acknowledged only once on disk
+  return options;
+}
+
+}  // namespace
+
+std::string shape_key(const std::string& id) { return kShapePrefix + id; }
+
+Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, std::size_t dimension,
+                                  const ShapeLimits& limits) {
+  auto damaged = [&](const std::string& what) {
+    return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: " + what);
+  };
+  std::uint64_t label = 0, geometry_size = 0, sketch_size = 0;
+  if (bytes.size() < 16) return damaged("too short");
+  std::memcpy(&label, bytes.data(), 8);
+  std::memcpy(&geometry_size, bytes.data() + 8, 8);
+  if (geometry_size > bytes.size() - 16) return damaged("geometry length exceeds the record");
+  Result<Shape> shape = decode_shape(bytes.substr(16, geometry_size), limits);
+  if (!shape) return damaged(shape.status().to_string());
+  std::size_t offset = 16 + geometry_size;
+  if (bytes.size() - offset < 8) return damaged("truncated before the sketch");
+  std::memcpy(&sketch_size, bytes.data() + offset, 8);
+  offset += 8;
+  if (sketch_size != dimension || (bytes.size() - offset) / sizeof(float) < sketch_size) {
+    return damaged("sketch length does not match the landmark count");
+  }
+  StoredShape stored;
+  stored.id = id;
+  stored.label = static_cast<std::int64_t>(label);
+  stored.shape = std::move(*shape);
+  stored.sketch.resize(sketch_size);
+  std::memcpy(stored.sketch.data(), bytes.data() + offset, sketch_size * sizeof(float));
+  stored.metadata = std::string(bytes.substr(offset + sketch_size * sizeof(float)));
+  return stored;
+}
+
+Result<StoredShape> Collection::State::load(const std::string& id) const {
+  std::string value;
+  const rocksdb::Status status = database->Get(rocksdb::ReadOptions(), shape_key(id), &value);
+  if (status.IsNotFound()) return Status(StatusCode::not_found, "no shape with id '" + id + "'");
+  if (Status s = from_rocksdb(status, "reading '" + id + "'"); !s.is_ok()) return s;
+  return decode_record(id, value, sketcher->dimension(), settings.limits);
+}
+
+Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
+Collection::~Collection() = default;
+
+const CollectionSettings& Collection::settings() const { return state_->settings; }
+
+std::size_t Collection::size() const {
+  std::shared_lock lock(state_->labels_mutex);
+  return state_->label_of_id.size();
+}
+
+namespace {
+
+std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings, std::unique_ptr<rocksdb::DB> db) {
+  auto state = std::make_unique<Collection::State>();
+  state->settings = settings;
+  state->database = std::move(db);
+  state->sketcher = std::make_unique<Sketcher>(settings.landmarks);
+  state->index = std::make_unique<VectorIndex>(settings.landmarks.size());
+  double weight_sum = 0;
+  for (double w : settings.landmarks.weights) weight_sum += w;
+  state->root_weight_sum = std::sqrt(weight_sum);
+  return state;
+}
+
+}  // namespace
+
+Result<std::unique_ptr<Collection>> Collection::create(const std::string& directory,
+                                                       const CollectionSettings& settings) {
+  if (settings.landmarks.size() == 0) return invalid_argument("a collection needs at least one landmark");
+  std::error_code error;
+  if (std::filesystem::exists(directory, error) && !std::filesystem::is_empty(directory, error)) {
+    return Status(StatusCode::already_exists, "'" + directory + "' is not empty");
+  }
+  Result<std::unique_ptr<rocksdb::DB>> db = open_database(directory, true);
+  if (!db) return db.status();
+  const std::string manifest = manifest_json(settings).dump();
+  if (Status s = from_rocksdb((*db)->Put(durable(), kManifestKey, manifest), "writing the manifest"); !s.is_ok()) {
+    return s;
+  }
+  return std::unique_ptr<Collection>(new Collection(new_state(settings, std::move(*db))));
+}
+
+Result<std::unique_ptr<Collection>> Collection::open(const std::string& directory) {
+  Result<std::unique_ptr<rocksdb::DB>> db = open_database(directory, false);
+  if (!db) return db.status();
+  std::string manifest;
+  if (Status s = from_rocksdb((*db)->Get(rocksdb::ReadOptions(), kManifestKey, &manifest), "reading the manifest");
+      !s.is_ok()) {
+    return s;
+  }
+  Result<CollectionSettings> settings = parse_manifest(manifest);
+  if (!settings) return settings.status();
+  auto state = new_state(*settings, std::move(*db));
+
+  // Rebuild the derived state from the records (a vector index snapshot is future work).
+  std::vector<std::int64_t> labels;
+  std::vector<float> vectors;
+  std::unique_ptr<rocksdb::Iterator> it(state->database->NewIterator(rocksdb::ReadOptions()));
+  for (it->Seek(kShapePrefix); it->Valid() && it->key().starts_with(kShapePrefix); it->Next()) {
+    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
+    Result<StoredShape> stored = decode_record(id, it->value().ToStringView(), state->sketcher->dimension(),
+                                               state->settings.limits);
+    if (!stored) return stored.status();
+    state->label_of_id[id] = stored->label;
+    state->id_of_label[stored->label] = id;
+    state->next_label = std::max(state->next_label, stored->label + 1);
+    labels.push_back(stored->label);
+    vectors.insert(vectors.end(), stored->sketch.begin(), stored->sketch.end());
+  }
+  if (Status s = from_rocksdb(it->status(), "scanning records"); !s.is_ok()) return s;
+  if (Status s = state->index->add(labels, vectors); !s.is_ok()) return s;
+  return std::unique_ptr<Collection>(new Collection(std::move(state)));
+}
+
+Status Collection::upsert(std::span<const ShapeRecord> batch) {
+  State& state = *state_;
+  const std::size_t dimension = state.sketcher->dimension();
+  // Check everything before writing anything.
+  std::vector<Shape> framed;
+  framed.reserve(batch.size());
+  for (std::size_t i = 0; i < batch.size(); ++i) {
+    const ShapeRecord& record = batch[i];
+    const std::string which = "record " + std::to_string(i) + " (id '" + record.id.substr(0, 64) + "')";
+    if (record.id.empty() || record.id.size() > state.settings.max_id_bytes) {
+      return invalid_argument(which + ": id must be 1 to " + std::to_string(state.settings.max_id_bytes) + " bytes");
+    }
+    if (record.metadata.size() > state.settings.max_metadata_bytes) {
+      return Status(StatusCode::resource_exhausted, which + ": metadata is over " +
+                                                        std::to_string(state.settings.max_metadata_bytes) + " bytes");
+    }
+    if (!Json::accept(record.metadata) || !Json::parse(record.metadata).is_object()) {
+      return invalid_argument(which + ": metadata must be a JSON object");
+    }
+    if (Status s = validate(record.shape, state.settings.limits); !s.is_ok()) {
+      return Status(s.code(), which + ": " + s.message(), s.where());
+    }
+    framed.push_back(apply_frame(record.shape, state.settings.frame));
+  }
+
+  std::lock_guard write_lock(state.write_mutex);
+  rocksdb::WriteBatch write;
+  std::vector<std::int64_t> new_labels, old_labels;
+  std::vector<float> vectors(batch.size() * dimension);
+  std::unordered_map<std::string, std::int64_t> assigned;  // id → label, for this batch
+  std::int64_t next_label;
+  {
+    std::shared_lock lock(state.labels_mutex);
+    next_label = state.next_label;
+    for (const ShapeRecord& record : batch) {
+      if (auto found = state.label_of_id.find(record.id); found != state.label_of_id.end()) {
+        old_labels.push_back(found->second);
+      }
+    }
+  }
+  for (std::size_t i = 0; i < batch.size(); ++i) {
+    const std::int64_t label = next_label++;
+    if (auto earlier = assigned.find(batch[i].id); earlier != assigned.end()) old_labels.push_back(earlier->second);
+    assigned[batch[i].id] = label;
+    std::span<float> sketch(vectors.data() + i * dimension, dimension);
+    state.sketcher->sketch(framed[i], sketch);
+    write.Put(shape_key(batch[i].id), encode_record(label, framed[i], sketch, batch[i].metadata));
+    new_labels.push_back(label);
+  }
+  if (Status s = from_rocksdb(state.database->Write(durable(), &write), "writing a batch"); !s.is_ok()) return s;
+
+  // Durable: now make it searchable. Labels superseded within the batch are never indexed.
+  std::vector<std::int64_t> index_labels;
+  std::vector<float> index_vectors;
+  for (std::size_t i = 0; i < batch.size(); ++i) {
+    if (assigned[batch[i].id] != new_labels[i]) continue;
+    index_labels.push_back(new_labels[i]);
+    index_vectors.insert(index_vectors.end(), vectors.begin() + i * dimension, vectors.begin() + (i + 1) * dimension);
+  }
+  std::unique_lock lock(state.labels_mutex);
+  for (std::int64_t old : old_labels) {
+    state.id_of_label.erase(old);
+  }
+  if (Status s = state.index->remove(old_labels); !s.is_ok()) return s;
+  if (Status s = state.index->add(index_labels, index_vectors); !s.is_ok()) return s;
+  for (const auto& [id, label] : assigned) {
+    state.label_of_id[id] = label;
+    state.id_of_label[label] = id;
+  }
+  state.next_label = next_label;
+  return Status::ok();
+}
+
+Status Collection::remove(std::span<const std::string> ids) {
+  State& state = *state_;
+  std::lock_guard write_lock(state.write_mutex);
+  rocksdb::WriteBatch write;
+  std::vector<std::int64_t> labels;
+  std::vector<std::string> removed;
+  {
+    std::shared_lock lock(state.labels_mutex);
+    for (const std::string& id : ids) {
+      auto found = state.label_of_id.find(id);
+      if (found == state.label_of_id.end()) continue;
+      write.Delete(shape_key(id));
+      labels.push_back(found->second);
+      removed.push_back(id);
+    }
+  }
+  if (labels.empty()) return Status::ok();
+  if (Status s = from_rocksdb(state.database->Write(durable(), &write), "deleting"); !s.is_ok()) return s;
+  std::unique_lock lock(state.labels_mutex);
+  if (Status s = state.index->remove(labels); !s.is_ok()) return s;
+  for (std::size_t i = 0; i < labels.size(); ++i) {
+    state.id_of_label.erase(labels[i]);
+    state.label_of_id.erase(removed[i]);
+  }
+  return Status::ok();
+}
+
+Result<ShapeRecord> Collection::get(const std::string& id) const {
+  Result<StoredShape> stored = state_->load(id);
+  if (!stored) return stored.status();
+  return ShapeRecord{stored->id, std::move(stored->shape), std::move(stored->metadata)};
+}
+
+}  // namespace waymark

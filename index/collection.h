@@ -1,0 +1,117 @@
+// A durable shape collection and its query engine.
+//
+// A collection lives in its own directory: a RocksDB database holding a manifest (frame,
+// landmark set, limits) and one record per shape (its caller id, geometry in the collection's
+// frame, sketch vector, index label, metadata JSON); layout in index/STORE_FORMAT.md. The
+// vector index is derived: open() rebuilds it from the stored sketches.
+//
+// Writes: upsert() and remove() apply a whole batch or nothing, and return only after the
+// batch is synced to disk (RocksDB WriteBatch with sync). Writes are serialised; queries run
+// concurrently with each other and with writes, and a write becomes visible to queries once
+// upsert() returns.
+//
+// Queries (nearest): candidates come from the exhaustive L2 index over sketches, in order; each
+// is checked against lower bounds (the sketch L∞ bound, the bounding-box bound and, for Fréchet,
+// the endpoint bound) and against the decision procedure at the current k-th best before its
+// exact distance is computed. Every unseen shape's distance is at least
+// (L2 of the last candidate) / sqrt(Σ weights); once that reaches the k-th best exact distance
+// the answer is certified exact: no stored shape outside it is closer. Exact mode keeps drawing
+// candidates until certified (or its budget runs out); fast mode draws one budget's worth and
+// reports whether that happened to certify. An uncertified answer can miss closer shapes.
+#pragma once
+
+#include <cstdint>
+#include <memory>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "sketch/geometry/shape.h"
+#include "sketch/landmarks/landmark_set.h"
+#include "sketch/status.h"
+
+namespace waymark {
+
+struct CollectionSettings {
+  Frame frame = Frame::unit;
+  LandmarkSet landmarks;
+  ShapeLimits limits;
+  std::size_t max_id_bytes = 256;
+  std::size_t max_metadata_bytes = 16 * 1024;
+};
+
+struct ShapeRecord {
+  std::string id;
+  Shape shape;                 // as given (upsert) or in the collection's frame (get)
+  std::string metadata = "{}";  // a JSON object, as text
+};
+
+enum class Metric { hausdorff, frechet, discrete_frechet, sketch };
+const char* metric_name(Metric metric);
+Result<Metric> parse_metric(const std::string& name);
+
+struct QueryOptions {
+  std::size_t k = 10;
+  Metric metric = Metric::hausdorff;
+  bool exact = false;
+  // Candidates drawn from the vector index at most; 0 = the default (20·k in fast mode, every
+  // stored shape in exact mode).
+  std::size_t candidate_budget = 0;
+};
+
+struct QueryHit {
+  std::string id;
+  double distance;         // exact, under the query's metric (sketch distance for Metric::sketch)
+  double sketch_distance;  // L2 between sketches
+  std::string metadata;
+};
+
+struct QueryStats {
+  std::size_t candidates_fetched = 0;
+  std::size_t pruned_by_sketch_bound = 0;
+  std::size_t pruned_by_box_or_endpoint_bound = 0;
+  std::size_t pruned_by_decision = 0;
+  std::size_t exact_evaluations = 0;
+  std::size_t not_applicable = 0;  // stored shapes the metric does not apply to (Fréchet on several parts)
+};
+
+struct QueryAnswer {
+  std::vector<QueryHit> hits;  // nearest first
+  QueryStats stats;
+  bool certified = false;  // true: no stored shape outside `hits` is closer than the last hit
+};
+
+class Collection {
+ public:
+  // Creates a new collection in an empty or missing directory; already_exists if one is there.
+  static Result<std::unique_ptr<Collection>> create(const std::string& directory, const CollectionSettings& settings);
+  // Opens an existing collection and rebuilds its vector index from the stored sketches.
+  static Result<std::unique_ptr<Collection>> open(const std::string& directory);
+  ~Collection();
+
+  const CollectionSettings& settings() const;
+  std::size_t size() const;
+
+  // All or nothing. invalid_argument names the record ("record 3 (id 'x'): ..."); nothing is
+  // written then. A later record with the same id as an earlier one in the batch wins.
+  Status upsert(std::span<const ShapeRecord> batch);
+  // Ids that are not stored are ignored. All or nothing, durable on return.
+  Status remove(std::span<const std::string> ids);
+  Result<ShapeRecord> get(const std::string& id) const;
+
+  // The query shape is given in input coordinates; the collection's frame is applied to it.
+  Result<QueryAnswer> nearest(const Shape& query, const QueryOptions& options) const;
+  // "More like this": nearest to a stored shape, excluding that shape.
+  Result<QueryAnswer> nearest_to_stored(const std::string& id, const QueryOptions& options) const;
+  // The baseline: exact distance to every stored shape. O(n) exact evaluations.
+  Result<QueryAnswer> nearest_by_full_scan(const Shape& query, const QueryOptions& options) const;
+
+  // Opaque to callers; defined in index/collection_state.h for the index module's own files.
+  struct State;
+
+ private:
+  explicit Collection(std::unique_ptr<State> state);
+  std::unique_ptr<State> state_;
+};
+
+}  // namespace waymark

@@ -1,0 +1,48 @@
+// Internal to index/: what a Collection holds, shared by collection.cc (storage) and
+// query_planner.cc (queries).
+#pragma once
+
+#include <rocksdb/db.h>
+
+#include <memory>
+#include <shared_mutex>
+#include <string>
+#include <unordered_map>
+#include <vector>
+
+#include "index/collection.h"
+#include "index/vector_index.h"
+#include "sketch/landmarks/sketcher.h"
+
+namespace waymark {
+
+// One stored shape as decoded from its record.
+struct StoredShape {
+  std::string id;
+  std::int64_t label = 0;
+  Shape shape;  // in the collection's frame
+  std::vector<float> sketch;
+  std::string metadata;
+};
+
+struct Collection::State {
+  CollectionSettings settings;
+  std::unique_ptr<rocksdb::DB> database;
+  std::unique_ptr<Sketcher> sketcher;
+  std::unique_ptr<VectorIndex> index;
+  double root_weight_sum = 1;  // sqrt(Σ w_i): the L2 → L∞ bound factor
+
+  mutable std::shared_mutex labels_mutex;  // guards the two maps and next_label
+  std::unordered_map<std::string, std::int64_t> label_of_id;
+  std::unordered_map<std::int64_t, std::string> id_of_label;
+  std::int64_t next_label = 1;
+  std::mutex write_mutex;  // writes are serialised
+
+  Result<StoredShape> load(const std::string& id) const;
+};
+
+std::string shape_key(const std::string& id);
+Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, std::size_t dimension,
+                                  const ShapeLimits& limits);
+
+}  // namespace waymark
