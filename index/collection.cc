@@ -167,6 +167,12 @@ Result<std::unique_ptr<Collection>> Collection::create(const std::string& direct
 }
 
 Result<std::unique_ptr<Collection>> Collection::open(const std::string& directory) {
+  // RocksDB creates the directory and its log even when asked not to create a database, so
+  // look first: opening a wrong path must leave nothing behind.
+  std::error_code error;
+  if (!std::filesystem::exists(std::filesystem::path(directory) / "CURRENT", error)) {
+    return Status(StatusCode::not_found, "no collection at '" + directory + "'");
+  }
   Result<std::unique_ptr<rocksdb::DB>> db = open_database(directory, false);
   if (!db) return db.status();
   std::string manifest;

@@ -86,6 +86,7 @@ class Collection {
   // Creates a new collection in an empty or missing directory; already_exists if one is there.
   static Result<std::unique_ptr<Collection>> create(const std::string& directory, const CollectionSettings& settings);
   // Opens an existing collection and rebuilds its vector index from the stored sketches.
+  // not_found when the directory holds no collection (nothing is created then).
   static Result<std::unique_ptr<Collection>> open(const std::string& directory);
   ~Collection();
 

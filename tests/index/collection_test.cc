@@ -144,6 +144,10 @@ TEST_CASE("RestartReadsEverythingBack") {
   CHECK(got->metadata == "{\"n\":17}");
   CHECK(got->shape == apply_frame(records[17].shape, Frame::unit));
   CHECK(Collection::create(directory.path, settings_with(32)).status().code() == StatusCode::already_exists);
+  // Opening a path with no collection fails cleanly and creates nothing there.
+  const std::filesystem::path missing = directory.path / "nothing-here";
+  CHECK(Collection::open(missing).status().code() == StatusCode::not_found);
+  CHECK_FALSE(std::filesystem::exists(missing));
 }
 
 TEST_CASE("UpsertReplacesAndDeleteRemoves") {
