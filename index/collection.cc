@@ -1,4 +1,6 @@
+#include <fcntl.h>
 #include <rocksdb/write_batch.h>
+#include <unistd.h>
 
 #include <cmath>
 #include <cstring>
@@ -83,6 +85,17 @@ rocksdb::WriteOptions durable() {
   return options;
 }
 
+// Makes a rename inside the parent directory durable.
+Status sync_parent_directory(const std::string& path) {
+  const std::string parent = std::filesystem::absolute(path).parent_path().string();
+  const int descriptor = ::open(parent.c_str(), O_RDONLY | O_DIRECTORY);
+  if (descriptor < 0) return Status(StatusCode::io_error, "cannot open '" + parent + "' to sync it");
+  const int result = ::fsync(descriptor);
+  ::close(descriptor);
+  if (result != 0) return Status(StatusCode::io_error, "fsync of '" + parent + "' failed");
+  return Status::ok();
+}
+
 }  // namespace
 
 std::string shape_key(const std::string& id) { return kShapePrefix + id; }
@@ -153,17 +166,28 @@ std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings,
 Result<std::unique_ptr<Collection>> Collection::create(const std::string& directory,
                                                        const CollectionSettings& settings) {
   if (settings.landmarks.size() == 0) return invalid_argument("a collection needs at least one landmark");
+  namespace fs = std::filesystem;
   std::error_code error;
-  if (std::filesystem::exists(directory, error) && !std::filesystem::is_empty(directory, error)) {
+  if (fs::exists(directory, error) && !fs::is_empty(directory, error)) {
     return Status(StatusCode::already_exists, "'" + directory + "' is not empty");
   }
-  Result<std::unique_ptr<rocksdb::DB>> db = open_database(directory, true);
-  if (!db) return db.status();
-  const std::string manifest = manifest_json(settings).dump();
-  if (Status s = from_rocksdb((*db)->Put(durable(), kManifestKey, manifest), "writing the manifest"); !s.is_ok()) {
-    return s;
+  // Built beside its final place and renamed into it, so a crash leaves either no collection
+  // or a complete one (never a database without its manifest).
+  const std::string building = directory + ".creating";
+  fs::remove_all(building, error);  // left by a create that crashed
+  {
+    Result<std::unique_ptr<rocksdb::DB>> db = open_database(building, true);
+    if (!db) return db.status();
+    const std::string manifest = manifest_json(settings).dump();
+    if (Status s = from_rocksdb((*db)->Put(durable(), kManifestKey, manifest), "writing the manifest"); !s.is_ok()) {
+      return s;
+    }
   }
-  return std::unique_ptr<Collection>(new Collection(new_state(settings, std::move(*db))));
+  if (fs::exists(directory, error)) fs::remove(directory, error);  // an empty directory
+  fs::rename(building, directory, error);
+  if (error) return Status(StatusCode::io_error, "cannot move the new collection into '" + directory + "': " + error.message());
+  if (Status s = sync_parent_directory(directory); !s.is_ok()) return s;
+  return open(directory);
 }
 
 Result<std::unique_ptr<Collection>> Collection::open(const std::string& directory) {

@@ -84,6 +84,7 @@ struct QueryAnswer {
 class Collection {
  public:
   // Creates a new collection in an empty or missing directory; already_exists if one is there.
+  // Atomic: built in "<directory>.creating" and renamed into place.
   static Result<std::unique_ptr<Collection>> create(const std::string& directory, const CollectionSettings& settings);
   // Opens an existing collection and rebuilds its vector index from the stored sketches.
   // not_found when the directory holds no collection (nothing is created then).
