@@ -137,6 +137,14 @@ Result<StoredShape> Collection::State::load(const std::string& id) const {
   return decode_record(id, value, sketcher->dimension(), settings.limits);
 }
 
+std::vector<float> Collection::State::index_vector(std::span<const float> sketch) const {
+  std::vector<float> raw(sketch.size());
+  for (std::size_t i = 0; i < sketch.size(); ++i) {
+    raw[i] = static_cast<float>(sketch[i] / std::sqrt(settings.landmarks.weights[i]));
+  }
+  return raw;
+}
+
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
 Collection::~Collection() = default;
 
@@ -154,10 +162,7 @@ std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings,
   state->settings = settings;
   state->database = std::move(db);
   state->sketcher = std::make_unique<Sketcher>(settings.landmarks);
-  state->index = std::make_unique<VectorIndex>(settings.landmarks.size());
-  double weight_sum = 0;
-  for (double w : settings.landmarks.weights) weight_sum += w;
-  state->root_weight_sum = std::sqrt(weight_sum);
+  state->index = std::make_unique<VectorIndex>(settings.landmarks.size(), VectorMetric::linf);
   return state;
 }
 
@@ -221,7 +226,8 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
     state->id_of_label[stored->label] = id;
     state->next_label = std::max(state->next_label, stored->label + 1);
     labels.push_back(stored->label);
-    vectors.insert(vectors.end(), stored->sketch.begin(), stored->sketch.end());
+    const std::vector<float> raw = state->index_vector(stored->sketch);
+    vectors.insert(vectors.end(), raw.begin(), raw.end());
   }
   if (Status s = from_rocksdb(it->status(), "scanning records"); !s.is_ok()) return s;
   if (Status s = state->index->add(labels, vectors); !s.is_ok()) return s;
@@ -285,7 +291,8 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   for (std::size_t i = 0; i < batch.size(); ++i) {
     if (assigned[batch[i].id] != new_labels[i]) continue;
     index_labels.push_back(new_labels[i]);
-    index_vectors.insert(index_vectors.end(), vectors.begin() + i * dimension, vectors.begin() + (i + 1) * dimension);
+    const std::vector<float> raw = state.index_vector(std::span<const float>(vectors).subspan(i * dimension, dimension));
+    index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
   }
   std::unique_lock lock(state.labels_mutex);
   for (std::int64_t old : old_labels) {

@@ -10,14 +10,17 @@
 // concurrently with each other and with writes, and a write becomes visible to queries once
 // upsert() returns.
 //
-// Queries (nearest): candidates come from the exhaustive L2 index over sketches, in order; each
-// is checked against lower bounds (the sketch L∞ bound, the bounding-box bound and, for Fréchet,
-// the endpoint bound) and against the decision procedure at the current k-th best before its
-// exact distance is computed. Every unseen shape's distance is at least
-// (L2 of the last candidate) / sqrt(Σ weights); once that reaches the k-th best exact distance
-// the answer is certified exact: no stored shape outside it is closer. Exact mode keeps drawing
-// candidates until certified (or its budget runs out); fast mode draws one budget's worth and
-// reports whether that happened to certify. An uncertified answer can miss closer shapes.
+// Queries (nearest): candidates come from the exhaustive L∞ index over raw landmark distances,
+// in order of that L∞ value, which is a lower bound on the exact distance; each is checked
+// against lower bounds (the sketch L∞ bound, the bounding-box bound and, for Fréchet, the
+// endpoint bound) and against the decision procedure at the current k-th best before its
+// exact distance is computed. Every unseen shape's distance is at least the last candidate's
+// L∞ value; once that exceeds the k-th best exact distance the answer is certified exact: no
+// stored shape outside it is closer. (Metric::sketch ranks the drawn candidates by sketch L2:
+// an estimate, certified only when every shape was drawn.) Both modes draw candidates in
+// growing rounds until the answer is certified or the budget is spent; they differ only in the
+// default budget (exact: every stored shape; fast: 20·k). An uncertified answer can miss
+// closer shapes.
 #pragma once
 
 #include <cstdint>

@@ -30,7 +30,9 @@ struct Collection::State {
   std::unique_ptr<rocksdb::DB> database;
   std::unique_ptr<Sketcher> sketcher;
   std::unique_ptr<VectorIndex> index;
-  double root_weight_sum = 1;  // sqrt(Σ w_i): the L2 → L∞ bound factor
+
+  // What the index holds for a sketch: the raw distances d(q_i, S) = v_i / sqrt(w_i).
+  std::vector<float> index_vector(std::span<const float> sketch) const;
 
   mutable std::shared_mutex labels_mutex;  // guards the two maps and next_label
   std::unordered_map<std::string, std::int64_t> label_of_id;

@@ -22,13 +22,14 @@ const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", 
 
 // The query, framed and prepared once for every candidate.
 struct PreparedQuery {
-  PreparedQuery(const Shape& framed, const Sketcher& sketcher)
-      : shape(framed), prepared(framed), sketch(sketcher.sketch(framed)) {
+  PreparedQuery(const Shape& framed, const Collection::State& state)
+      : shape(framed), prepared(framed), sketch(state.sketcher->sketch(framed)), raw(state.index_vector(sketch)) {
     if (Result<Path> path = curve_of(framed)) curve = std::move(*path);
   }
   Shape shape;
   PreparedShape prepared;
   std::vector<float> sketch;
+  std::vector<float> raw;  // what the index is searched with
   std::optional<Path> curve;  // when the query is a single curve
 };
 
@@ -116,7 +117,7 @@ Status check_query(const PreparedQuery& query, const QueryOptions& options) {
 
 Result<QueryAnswer> run_query(const Collection::State& state, const Shape& framed, const QueryOptions& options,
                               std::optional<std::int64_t> excluded_label) {
-  const PreparedQuery query(framed, *state.sketcher);
+  const PreparedQuery query(framed, state);
   if (Status s = check_query(query, options); !s.is_ok()) return s;
   const std::size_t stored = state.index->size();
   const std::size_t budget = options.candidate_budget > 0 ? options.candidate_budget
@@ -127,7 +128,7 @@ Result<QueryAnswer> run_query(const Collection::State& state, const Shape& frame
   std::vector<std::int64_t> seen;
   std::size_t fetch = std::min(budget, std::max<std::size_t>(4 * options.k, 32));
   while (true) {
-    Result<std::vector<Neighbour>> neighbours = state.index->search(query.sketch, fetch + (excluded_label ? 1 : 0));
+    Result<std::vector<Neighbour>> neighbours = state.index->search(query.raw, fetch + (excluded_label ? 1 : 0));
     if (!neighbours) return neighbours.status();
     for (const Neighbour& n : *neighbours) {
       if (n.label == excluded_label || std::find(seen.begin(), seen.end(), n.label) != seen.end()) continue;
@@ -149,17 +150,15 @@ Result<QueryAnswer> run_query(const Collection::State& state, const Shape& frame
     }
     const std::size_t usable = neighbours->size() - (excluded_label ? 1 : 0);
     const bool exhausted = neighbours->size() < fetch + (excluded_label ? 1 : 0);
-    // Every shape not yet drawn has sketch L2 ≥ the last one drawn, hence a distance of at least
-    // that / sqrt(Σw) (L∞ ≥ L2 / sqrt(Σw), and the sketch L∞ bounds the exact distance). The
-    // factor allows for float rounding in the index's L2.
-    const double unseen_bound = neighbours->empty() ? kInfinity
-                                                    : std::sqrt(std::max(0.0f, neighbours->back().squared_distance)) *
-                                                          (1 - 1e-5) / state.root_weight_sum;
-    if (exhausted || options.metric == Metric::sketch || unseen_bound > top.worst()) {
+    // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
+    // bounds its exact distance from below. The factor allows for float rounding.
+    const double unseen_bound = neighbours->empty() ? kInfinity : neighbours->back().distance * (1 - 1e-5);
+    if (exhausted || (options.metric != Metric::sketch && unseen_bound > top.worst())) {
       answer.certified = exhausted || unseen_bound > top.worst();
       break;
     }
-    if (!options.exact || fetch >= budget || usable == 0) break;
+    // Fast and exact mode grow alike and stop once certified; they differ only in the budget.
+    if (fetch >= budget || usable == 0) break;
     fetch = std::min(budget, fetch * 4);
   }
   answer.hits = top.take();
@@ -190,7 +189,7 @@ Result<QueryAnswer> Collection::nearest_to_stored(const std::string& id, const Q
 
 Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const QueryOptions& options) const {
   if (Status s = validate(query, state_->settings.limits); !s.is_ok()) return s;
-  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_->sketcher);
+  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_);
   if (Status s = check_query(prepared, options); !s.is_ok()) return s;
   QueryAnswer answer;
   TopHits top(options.k);

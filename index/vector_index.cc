@@ -16,8 +16,9 @@ Status from_exception(const std::exception& error) {
 
 }  // namespace
 
-VectorIndex::VectorIndex(std::size_t dimension) : dimension_(dimension) {
-  auto map = std::make_unique<faiss::IndexIDMap2>(new faiss::IndexFlatL2(static_cast<faiss::Index::idx_t>(dimension)));
+VectorIndex::VectorIndex(std::size_t dimension, VectorMetric metric) : dimension_(dimension) {
+  auto map = std::make_unique<faiss::IndexIDMap2>(new faiss::IndexFlat(
+      static_cast<faiss::Index::idx_t>(dimension), metric == VectorMetric::linf ? faiss::METRIC_Linf : faiss::METRIC_L2));
   map->own_fields = true;
   index_ = std::move(map);
 }

@@ -1,8 +1,12 @@
-// The vector index: an exhaustive (flat) L2 index over sketch vectors, keyed by 64-bit labels,
-// wrapping FAISS 1.7.3 (IndexIDMap2 over IndexFlatL2, which supports removal).
+// The vector index: an exhaustive (flat) index over vectors, keyed by 64-bit labels, under the
+// L∞ (max-coordinate) or L2 distance, wrapping FAISS 1.7.3 (IndexIDMap2 over IndexFlat, which
+// supports removal; FAISS's flat index accepts METRIC_Linf).
 //
 // Exhaustive means search() ranks every stored vector, so the n-th result is the n-th nearest
-// exactly; the query planner relies on that to certify answers. Graph (HNSW) and partitioned
+// exactly; the query planner relies on that to certify answers. Collections index raw
+// (unweighted) landmark distances under L∞: that distance is itself the lower bound on d_H and
+// d_F, so candidates arrive in lower-bound order (L∞ flat search is slower than L2 per vector,
+// but on real shapes it finds the true neighbours with far fewer candidates). Graph (HNSW) and partitioned
 // (IVF) kinds are future work (issue 3).
 // Thread safety: search() calls may run concurrently; add() and remove() take an exclusive
 // lock. FAISS exceptions are caught here and returned as Status.
@@ -22,14 +26,16 @@ struct Index;
 
 namespace waymark {
 
+enum class VectorMetric { l2, linf };
+
 struct Neighbour {
   std::int64_t label;
-  float squared_distance;  // squared L2 between sketch vectors
+  float distance;  // L∞, or squared L2 (FAISS's convention), between the vectors
 };
 
 class VectorIndex {
  public:
-  explicit VectorIndex(std::size_t dimension);
+  VectorIndex(std::size_t dimension, VectorMetric metric);
   ~VectorIndex();
   VectorIndex(const VectorIndex&) = delete;
   VectorIndex& operator=(const VectorIndex&) = delete;
