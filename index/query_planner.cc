@@ -7,6 +7,7 @@
 #include <cstring>
 #include <limits>
 #include <optional>
+#include <unordered_set>
 
 #include "index/collection_state.h"
 #include "sketch/distance/bounds.h"
@@ -125,14 +126,13 @@ Result<QueryAnswer> run_query(const Collection::State& state, const Shape& frame
                                                           : 20 * options.k;
   QueryAnswer answer;
   TopHits top(options.k);
-  std::vector<std::int64_t> seen;
+  std::unordered_set<std::int64_t> seen;  // labels already scored (rounds overlap)
   std::size_t fetch = std::min(budget, std::max<std::size_t>(4 * options.k, 32));
   while (true) {
     Result<std::vector<Neighbour>> neighbours = state.index->search(query.raw, fetch + (excluded_label ? 1 : 0));
     if (!neighbours) return neighbours.status();
     for (const Neighbour& n : *neighbours) {
-      if (n.label == excluded_label || std::find(seen.begin(), seen.end(), n.label) != seen.end()) continue;
-      seen.push_back(n.label);
+      if (n.label == excluded_label || !seen.insert(n.label).second) continue;
       std::string id;
       {
         std::shared_lock lock(state.labels_mutex);
