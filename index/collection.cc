@@ -137,14 +137,6 @@ Result<StoredShape> Collection::State::load(const std::string& id) const {
   return decode_record(id, value, sketcher->dimension(), settings.limits);
 }
 
-std::vector<float> Collection::State::index_vector(std::span<const float> sketch) const {
-  std::vector<float> raw(sketch.size());
-  for (std::size_t i = 0; i < sketch.size(); ++i) {
-    raw[i] = static_cast<float>(sketch[i] / std::sqrt(settings.landmarks.weights[i]));
-  }
-  return raw;
-}
-
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
 Collection::~Collection() = default;
 
@@ -226,7 +218,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
     state->id_of_label[stored->label] = id;
     state->next_label = std::max(state->next_label, stored->label + 1);
     labels.push_back(stored->label);
-    const std::vector<float> raw = state->index_vector(stored->sketch);
+    const std::vector<float> raw = state->sketcher->unweighted(stored->sketch);
     vectors.insert(vectors.end(), raw.begin(), raw.end());
   }
   if (Status s = from_rocksdb(it->status(), "scanning records"); !s.is_ok()) return s;
@@ -250,7 +242,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
       return Status(StatusCode::resource_exhausted, which + ": metadata is over " +
                                                         std::to_string(state.settings.max_metadata_bytes) + " bytes");
     }
-    if (!Json::accept(record.metadata) || !Json::parse(record.metadata).is_object()) {
+    if (const Json metadata = Json::parse(record.metadata, nullptr, false); !metadata.is_object()) {
       return invalid_argument(which + ": metadata must be a JSON object");
     }
     if (Status s = validate(record.shape, state.settings.limits); !s.is_ok()) {
@@ -259,50 +251,47 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     framed.push_back(apply_frame(record.shape, state.settings.frame));
   }
 
+  // A later record with the same id wins, so only each id's last record is stored at all.
+  std::unordered_map<std::string_view, std::size_t> last_of_id;
+  for (std::size_t i = 0; i < batch.size(); ++i) last_of_id[batch[i].id] = i;
+  std::vector<std::size_t> winners;
+  for (std::size_t i = 0; i < batch.size(); ++i) {
+    if (last_of_id[batch[i].id] == i) winners.push_back(i);
+  }
+
   std::lock_guard write_lock(state.write_mutex);
-  rocksdb::WriteBatch write;
-  std::vector<std::int64_t> new_labels, old_labels;
-  std::vector<float> vectors(batch.size() * dimension);
-  std::unordered_map<std::string, std::int64_t> assigned;  // id → label, for this batch
+  std::vector<std::int64_t> old_labels, new_labels;
   std::int64_t next_label;
   {
     std::shared_lock lock(state.labels_mutex);
     next_label = state.next_label;
-    for (const ShapeRecord& record : batch) {
-      if (auto found = state.label_of_id.find(record.id); found != state.label_of_id.end()) {
+    for (std::size_t i : winners) {
+      if (auto found = state.label_of_id.find(batch[i].id); found != state.label_of_id.end()) {
         old_labels.push_back(found->second);
       }
     }
   }
-  for (std::size_t i = 0; i < batch.size(); ++i) {
-    const std::int64_t label = next_label++;
-    if (auto earlier = assigned.find(batch[i].id); earlier != assigned.end()) old_labels.push_back(earlier->second);
-    assigned[batch[i].id] = label;
-    std::span<float> sketch(vectors.data() + i * dimension, dimension);
+  rocksdb::WriteBatch write;
+  std::vector<float> sketch(dimension), index_vectors;
+  index_vectors.reserve(winners.size() * dimension);
+  for (std::size_t i : winners) {
+    new_labels.push_back(next_label++);
     state.sketcher->sketch(framed[i], sketch);
-    write.Put(shape_key(batch[i].id), encode_record(label, framed[i], sketch, batch[i].metadata));
-    new_labels.push_back(label);
+    write.Put(shape_key(batch[i].id), encode_record(new_labels.back(), framed[i], sketch, batch[i].metadata));
+    const std::vector<float> raw = state.sketcher->unweighted(sketch);
+    index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
   }
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "writing a batch"); !s.is_ok()) return s;
 
-  // Durable: now make it searchable. Labels superseded within the batch are never indexed.
-  std::vector<std::int64_t> index_labels;
-  std::vector<float> index_vectors;
-  for (std::size_t i = 0; i < batch.size(); ++i) {
-    if (assigned[batch[i].id] != new_labels[i]) continue;
-    index_labels.push_back(new_labels[i]);
-    const std::vector<float> raw = state.index_vector(std::span<const float>(vectors).subspan(i * dimension, dimension));
-    index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
-  }
+  // Durable: now make it searchable.
   std::unique_lock lock(state.labels_mutex);
-  for (std::int64_t old : old_labels) {
-    state.id_of_label.erase(old);
-  }
   if (Status s = state.index->remove(old_labels); !s.is_ok()) return s;
-  if (Status s = state.index->add(index_labels, index_vectors); !s.is_ok()) return s;
-  for (const auto& [id, label] : assigned) {
-    state.label_of_id[id] = label;
-    state.id_of_label[label] = id;
+  if (Status s = state.index->add(new_labels, index_vectors); !s.is_ok()) return s;
+  for (std::int64_t old : old_labels) state.id_of_label.erase(old);
+  for (std::size_t w = 0; w < winners.size(); ++w) {
+    const std::string& id = batch[winners[w]].id;
+    state.label_of_id[id] = new_labels[w];
+    state.id_of_label[new_labels[w]] = id;
   }
   state.next_label = next_label;
   return Status::ok();

@@ -30,9 +30,7 @@ struct Collection::State {
   std::unique_ptr<rocksdb::DB> database;
   std::unique_ptr<Sketcher> sketcher;
   std::unique_ptr<VectorIndex> index;
-
-  // What the index holds for a sketch: the raw distances d(q_i, S) = v_i / sqrt(w_i).
-  std::vector<float> index_vector(std::span<const float> sketch) const;
+  // The index holds sketcher->unweighted(sketch): raw distances d(q_i, S), under L∞.
 
   mutable std::shared_mutex labels_mutex;  // guards the two maps and next_label
   std::unordered_map<std::string, std::int64_t> label_of_id;

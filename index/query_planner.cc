@@ -24,7 +24,7 @@ const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", 
 // The query, framed and prepared once for every candidate.
 struct PreparedQuery {
   PreparedQuery(const Shape& framed, const Collection::State& state)
-      : shape(framed), prepared(framed), sketch(state.sketcher->sketch(framed)), raw(state.index_vector(sketch)) {
+      : shape(framed), prepared(framed), sketch(state.sketcher->sketch(framed)), raw(state.sketcher->unweighted(sketch)) {
     if (Result<Path> path = curve_of(framed)) curve = std::move(*path);
   }
   Shape shape;

@@ -104,6 +104,13 @@ void Sketcher::sketch_batch(std::span<const Shape> shapes, std::span<float> out)
   for (std::size_t i = 0; i < shapes.size(); ++i) sketch(shapes[i], out.subspan(i * dimension(), dimension()));
 }
 
+std::vector<float> Sketcher::unweighted(std::span<const float> sketch) const {
+  assert(sketch.size() == dimension());
+  std::vector<float> raw(sketch.size());
+  for (std::size_t k = 0; k < sketch.size(); ++k) raw[k] = static_cast<float>(sketch[k] * inverse_root_weight_[k]);
+  return raw;
+}
+
 double Sketcher::linf_lower_bound(std::span<const float> a, std::span<const float> b) const {
   assert(a.size() == dimension() && b.size() == dimension());
   // Each stored value is within 2^-24 (relative) of the double it came from, and that double

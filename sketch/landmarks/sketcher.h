@@ -39,6 +39,9 @@ class Sketcher {
   // Unweighted distances d(q_i, S) in double precision; out.size() == dimension().
   void distances(const Shape& shape, std::span<double> out) const;
 
+  // The unweighted distances v_i / sqrt(w_i) recovered from a sketch (float). O(n).
+  std::vector<float> unweighted(std::span<const float> sketch) const;
+
   // max_i |a_i − b_i| / sqrt(w_i), reduced by the largest error float storage can introduce:
   // a certified lower bound on d_H(A, B) and d_F(A, B) for sketches a, b of A and B. O(n).
   double linf_lower_bound(std::span<const float> a, std::span<const float> b) const;

@@ -26,12 +26,9 @@ double percentile(std::vector<double> values, double p) {
 }
 
 // Perturbed copies of 500 random-walk templates (seeded, invented).
-Shape synthetic(std::size_t n, std::size_t vertices, const std::vector<Shape>& templates) {
+Shape synthetic(std::size_t n, const std::vector<Shape>& templates) {
   SeededRandom random(n * 7919 + 1);
-  Shape shape = templates[random.below(templates.size())];
-  for (Point& p : shape.parts[0]) p = {p.x + 0.3 * (random.uniform() - 0.5), p.y + 0.3 * (random.uniform() - 0.5)};
-  (void)vertices;
-  return shape;
+  return testing::jittered(templates[random.below(templates.size())], random, 0.3);
 }
 
 }  // namespace
@@ -58,7 +55,7 @@ int main(int argc, char** argv) {
   std::vector<ShapeRecord> batch;
   const auto ingest_start = Clock::now();
   for (std::size_t n = 0; n < shapes; ++n) {
-    batch.push_back({"shape-" + std::to_string(n), synthetic(n, vertices, templates), "{}"});
+    batch.push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
     if (batch.size() == 1000 || n + 1 == shapes) {
       if (Status s = (*collection)->upsert(batch); !s.is_ok()) {
         std::fprintf(stderr, "%s\n", s.to_string().c_str());
@@ -81,9 +78,8 @@ int main(int argc, char** argv) {
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
     struct Mode { const char* name; bool exact; bool scan; std::vector<double> times; double evaluations = 0; int certified = 0; };
     std::vector<Mode> modes = {{"fast", false, false, {}}, {"exact (certified)", true, false, {}}, {"full exact scan", true, true, {}}};
-    SeededRandom pick(2);
     for (std::size_t q = 0; q < queries; ++q) {
-      const Shape query = synthetic(shapes + q, vertices, templates);
+      const Shape query = synthetic(shapes + q, templates);
       for (Mode& mode : modes) {
         QueryOptions options;
         options.metric = metric;

@@ -39,8 +39,7 @@ const CurvePairs& curve_pairs(std::size_t vertices) {
     SeededRandom random(vertices);
     for (int i = 0; i < kPairs; ++i) {
       Shape a = testing::random_walk(random, vertices);
-      Shape b = a;
-      for (Point& p : b.parts[0]) p = {p.x + 0.6 * (random.uniform() - 0.5), p.y + 0.6 * (random.uniform() - 0.5)};
+      Shape b = testing::jittered(a, random, 0.6);
       pairs.frechet_value.push_back(vertices <= 400 ? frechet(a, b)->value : 0);
       pairs.first.push_back(std::move(a));
       pairs.second.push_back(std::move(b));

@@ -6,6 +6,7 @@
 #include "index/collection.h"
 #include "index/shape_codec.h"
 #include "support/random_shapes.h"
+#include "support/recall.h"
 #include "support/shape_helpers.h"
 
 using namespace waymark;
@@ -38,8 +39,7 @@ std::vector<ShapeRecord> synthetic_records(std::size_t count, std::uint64_t seed
   for (int t = 0; t < 40; ++t) templates.push_back(testing::random_walk(random, 6 + random.below(20)));
   std::vector<ShapeRecord> records;
   for (std::size_t i = 0; i < count; ++i) {
-    Shape shape = templates[random.below(templates.size())];
-    for (Point& p : shape.parts[0]) p = {p.x + 0.3 * (random.uniform() - 0.5), p.y + 0.3 * (random.uniform() - 0.5)};
+    const Shape shape = testing::jittered(templates[random.below(templates.size())], random, 0.3);
     records.push_back({"shape-" + std::to_string(i), shape, "{\"n\":" + std::to_string(i) + "}"});
   }
   return records;
@@ -106,19 +106,16 @@ TEST_CASE("FastModeRecallOnSyntheticShapes") {
   const std::vector<ShapeRecord> records = synthetic_records(2000, 7);
   REQUIRE((*collection)->upsert(records).is_ok());
   SeededRandom random(8);
-  std::size_t found = 0, wanted = 0;
+  testing::RecallCount recall_count;
   for (int q = 0; q < 30; ++q) {
     const Shape query = records[random.below(records.size())].shape;
     QueryOptions options;
     Result<QueryAnswer> fast = (*collection)->nearest(query, options);
     Result<QueryAnswer> scan = (*collection)->nearest_by_full_scan(query, options);
     REQUIRE((fast.is_ok() && scan.is_ok()));
-    for (const QueryHit& truth : scan->hits) {
-      ++wanted;
-      for (const QueryHit& hit : fast->hits) found += hit.id == truth.id;
-    }
+    recall_count.add(*scan, *fast);
   }
-  const double recall = static_cast<double>(found) / wanted;
+  const double recall = recall_count.recall();
   WARN("fast-mode recall@10 (Hausdorff, 2000 synthetic shapes, 64 landmarks): " << recall);
   CHECK(recall >= 0.95);
 }

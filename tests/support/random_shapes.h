@@ -49,4 +49,12 @@ inline Shape random_star_polygon(SeededRandom& random, std::size_t vertices, dou
   return shape;
 }
 
+// The shape with every vertex moved by up to ±amplitude/2 in x and y: a near-duplicate.
+inline Shape jittered(Shape shape, SeededRandom& random, double amplitude) {
+  for (Path& part : shape.parts) {
+    for (Point& p : part) p = {p.x + amplitude * (random.uniform() - 0.5), p.y + amplitude * (random.uniform() - 0.5)};
+  }
+  return shape;
+}
+
 }  // namespace waymark::testing
