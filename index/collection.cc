@@ -1,6 +1,4 @@
-#include <fcntl.h>
 #include <rocksdb/write_batch.h>
-#include <unistd.h>
 
 #include <cmath>
 #include <cstring>
@@ -9,6 +7,7 @@
 
 #include "index/collection_state.h"
 #include "index/shape_codec.h"
+#include "sketch/durable_file.h"
 
 namespace waymark {
 namespace {
@@ -83,17 +82,6 @@ rocksdb::WriteOptions durable() {
   rocksdb::WriteOptions options;
   options.sync = true;  // acknowledged only once on disk
   return options;
-}
-
-// Makes a rename inside the parent directory durable.
-Status sync_parent_directory(const std::string& path) {
-  const std::string parent = std::filesystem::absolute(path).parent_path().string();
-  const int descriptor = ::open(parent.c_str(), O_RDONLY | O_DIRECTORY);
-  if (descriptor < 0) return Status(StatusCode::io_error, "cannot open '" + parent + "' to sync it");
-  const int result = ::fsync(descriptor);
-  ::close(descriptor);
-  if (result != 0) return Status(StatusCode::io_error, "fsync of '" + parent + "' failed");
-  return Status::ok();
 }
 
 }  // namespace

@@ -6,6 +6,7 @@
 #include <fstream>
 #include <sstream>
 
+#include "sketch/durable_file.h"
 #include "sketch/geometry/text_cursor.h"
 
 namespace waymark {
@@ -210,18 +211,7 @@ Result<LandmarkSet> parse_landmark_file(const std::string& text, const LandmarkL
 }
 
 Status save_landmark_file(const LandmarkSet& set, const std::string& path) {
-  const std::string temporary = path + ".tmp";
-  {
-    std::ofstream out(temporary, std::ios::binary | std::ios::trunc);
-    if (!out) return Status(StatusCode::io_error, "cannot open '" + temporary + "' for writing");
-    out << to_landmark_file(set);
-    out.flush();
-    if (!out) return Status(StatusCode::io_error, "cannot write '" + temporary + "'");
-  }
-  if (std::rename(temporary.c_str(), path.c_str()) != 0) {
-    return Status(StatusCode::io_error, "cannot rename '" + temporary + "' to '" + path + "'");
-  }
-  return Status::ok();
+  return write_file_atomically(path, to_landmark_file(set));
 }
 
 Result<LandmarkSet> load_landmark_file(const std::string& path, const LandmarkLimits& limits) {

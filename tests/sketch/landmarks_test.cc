@@ -90,6 +90,9 @@ TEST_CASE("SaveAndLoadThroughAFile") {
   CHECK(*read == *set);
   std::remove(path.c_str());
   CHECK(load_landmark_file(path).status().code() == StatusCode::io_error);
+  const Status unwritable = save_landmark_file(*set, "no-such-directory/landmarks.txt");
+  CHECK(unwritable.code() == StatusCode::io_error);
+  CHECK(unwritable.message().rfind("cannot create 'no-such-directory/landmarks.txt.tmp'", 0) == 0);
 }
 
 TEST_CASE("SketchMatchesScalarDistances") {
