@@ -31,31 +31,28 @@ std::string number_text(double value) {
   return buffer;
 }
 
-ParseOptions parse_options(const Arguments& arguments, Status& status) {
+Result<ParseOptions> parse_options(const Arguments& arguments) {
   ParseOptions options;
   Result<std::uint64_t> vertices = arguments.count("max-vertices", options.limits.max_vertices);
+  if (!vertices) return vertices.status();
   Result<double> tolerance = arguments.number("curve-tolerance", options.curve_tolerance);
-  if (!vertices) status = vertices.status();
-  else if (!tolerance) status = tolerance.status();
-  else {
-    options.limits.max_vertices = *vertices;
-    options.curve_tolerance = *tolerance;
-  }
+  if (!tolerance) return tolerance.status();
+  options.limits.max_vertices = *vertices;
+  options.curve_tolerance = *tolerance;
   return options;
 }
 
 // Reads, parses and frames one shape operand; `label` ("first shape") goes into errors.
 Result<Shape> load_shape(const std::string& operand, const std::string& label, const Arguments& arguments) {
-  Status status;
-  const ParseOptions options = parse_options(arguments, status);
-  if (!status.is_ok()) return status;
+  Result<ParseOptions> options = parse_options(arguments);
+  if (!options) return options.status();
   Result<ShapeFormat> format = parse_shape_format(arguments.value_or("format", "auto"));
   if (!format) return format.status();
   Result<Frame> frame = parse_frame(arguments.value_or("frame", "absolute"));
   if (!frame) return frame.status();
   Result<std::string> text = read_shape_argument(operand);
   if (!text) return text.status();
-  Result<Shape> shape = parse_shape(*text, *format, options);
+  Result<Shape> shape = parse_shape(*text, *format, *options);
   if (!shape) {
     return Status(shape.status().code(), label + ": " + shape.status().message(), shape.status().where());
   }
