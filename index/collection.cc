@@ -1,5 +1,6 @@
 #include <rocksdb/write_batch.h>
 
+#include <chrono>
 #include <cmath>
 #include <cstring>
 #include <filesystem>
@@ -16,6 +17,7 @@ using Json = nlohmann::json;
 
 constexpr const char* kManifestKey = "manifest";
 constexpr const char* kShapePrefix = "s/";
+constexpr const char* kLastWriteKey = "last_write";  // u64 milliseconds since the Unix epoch
 
 Status from_rocksdb(const rocksdb::Status& status, const std::string& doing) {
   if (status.ok()) return Status::ok();
@@ -44,7 +46,8 @@ Json manifest_json(const CollectionSettings& settings) {
           {"max_vertices", settings.limits.max_vertices},
           {"max_parts", settings.limits.max_parts},
           {"max_id_bytes", settings.max_id_bytes},
-          {"max_metadata_bytes", settings.max_metadata_bytes}};
+          {"max_metadata_bytes", settings.max_metadata_bytes},
+          {"default_metric", metric_name(settings.default_metric)}};
 }
 
 Result<CollectionSettings> parse_manifest(const std::string& text) {
@@ -61,6 +64,12 @@ Result<CollectionSettings> parse_manifest(const std::string& text) {
     settings.limits.max_parts = json.at("max_parts").get<std::size_t>();
     settings.max_id_bytes = json.at("max_id_bytes").get<std::size_t>();
     settings.max_metadata_bytes = json.at("max_metadata_bytes").get<std::size_t>();
+    // Absent in manifests written before it existed: the default then.
+    if (json.contains("default_metric")) {
+      Result<Metric> metric = parse_metric(json.at("default_metric").get<std::string>());
+      if (!metric) return metric.status();
+      settings.default_metric = *metric;
+    }
   } catch (const std::exception& error) {
     return Status(StatusCode::data_loss, std::string("store: manifest is damaged: ") + error.what());
   }
@@ -76,6 +85,12 @@ Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory,
     return s;
   }
   return std::unique_ptr<rocksdb::DB>(raw);
+}
+
+std::string now_as_record() {
+  const auto now = std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::system_clock::now().time_since_epoch());
+  const std::uint64_t ms = static_cast<std::uint64_t>(now.count());
+  return std::string(reinterpret_cast<const char*>(&ms), sizeof ms);
 }
 
 rocksdb::WriteOptions durable() {
@@ -269,6 +284,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     const std::vector<float> raw = state.sketcher->unweighted(sketch);
     index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
   }
+  write.Put(kLastWriteKey, now_as_record());
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "writing a batch"); !s.is_ok()) return s;
 
   // Durable: now make it searchable.
@@ -302,6 +318,7 @@ Status Collection::remove(std::span<const std::string> ids) {
     }
   }
   if (labels.empty()) return Status::ok();
+  write.Put(kLastWriteKey, now_as_record());
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "deleting"); !s.is_ok()) return s;
   std::unique_lock lock(state.labels_mutex);
   if (Status s = state.index->remove(labels); !s.is_ok()) return s;
@@ -310,6 +327,30 @@ Status Collection::remove(std::span<const std::string> ids) {
     state.label_of_id.erase(removed[i]);
   }
   return Status::ok();
+}
+
+CollectionStatistics Collection::statistics() const {
+  CollectionStatistics statistics;
+  {
+    std::shared_lock lock(state_->labels_mutex);
+    statistics.shape_count = state_->label_of_id.size();
+    std::size_t id_bytes = 0;
+    for (const auto& [id, label] : state_->label_of_id) id_bytes += id.size();
+    // Two hash maps (id ↔ label): key, value and about two pointers of node and bucket each.
+    statistics.index_bytes = state_->index->memory_bytes() + 2 * id_bytes +
+                             statistics.shape_count * 2 * (sizeof(std::string) + sizeof(std::int64_t) + 4 * sizeof(void*));
+  }
+  std::uint64_t sst = 0, memtables = 0;
+  state_->database->GetIntProperty(rocksdb::DB::Properties::kLiveSstFilesSize, &sst);
+  state_->database->GetIntProperty(rocksdb::DB::Properties::kCurSizeAllMemTables, &memtables);
+  statistics.store_bytes = sst + memtables;
+  std::string value;
+  if (state_->database->Get(rocksdb::ReadOptions(), kLastWriteKey, &value).ok() && value.size() == 8) {
+    std::uint64_t ms = 0;
+    std::memcpy(&ms, value.data(), 8);
+    statistics.last_write_unix_ms = static_cast<std::int64_t>(ms);
+  }
+  return statistics;
 }
 
 Result<ShapeRecord> Collection::get(const std::string& id) const {

@@ -35,12 +35,17 @@
 
 namespace waymark {
 
+enum class Metric { hausdorff, frechet, discrete_frechet, sketch };
+const char* metric_name(Metric metric);
+Result<Metric> parse_metric(const std::string& name);
+
 struct CollectionSettings {
   Frame frame = Frame::unit;
   LandmarkSet landmarks;
   ShapeLimits limits;
   std::size_t max_id_bytes = 256;
   std::size_t max_metadata_bytes = 16 * 1024;
+  Metric default_metric = Metric::hausdorff;  // for callers that name none (the server)
 };
 
 struct ShapeRecord {
@@ -49,10 +54,6 @@ struct ShapeRecord {
   std::string metadata = "{}";  // a JSON object, as text
 };
 
-enum class Metric { hausdorff, frechet, discrete_frechet, sketch };
-const char* metric_name(Metric metric);
-Result<Metric> parse_metric(const std::string& name);
-
 struct QueryOptions {
   std::size_t k = 10;
   Metric metric = Metric::hausdorff;
@@ -60,6 +61,16 @@ struct QueryOptions {
   // Candidates drawn from the vector index at most; 0 = the default (20·k in fast mode, every
   // stored shape in exact mode).
   std::size_t candidate_budget = 0;
+  // A JSON object (as text); only shapes whose metadata has each of its members with an equal
+  // value are considered. Empty or "{}": no filter. Anything but an object is invalid_argument.
+  std::string metadata_filter;
+};
+
+struct RangeOptions {
+  double radius = 0;  // shapes at exact distance ≤ radius; ≥ 0 and finite
+  Metric metric = Metric::hausdorff;  // an exact metric; Metric::sketch is invalid_argument
+  std::size_t max_results = 1000;  // more matches than this: the first found, not certified
+  std::string metadata_filter;  // as in QueryOptions
 };
 
 struct QueryHit {
@@ -76,12 +87,22 @@ struct QueryStats {
   std::size_t pruned_by_decision = 0;
   std::size_t exact_evaluations = 0;
   std::size_t not_applicable = 0;  // stored shapes the metric does not apply to (Fréchet on several parts)
+  std::size_t filtered_out = 0;    // candidates whose metadata did not match the filter
 };
 
 struct QueryAnswer {
   std::vector<QueryHit> hits;  // nearest first
   QueryStats stats;
-  bool certified = false;  // true: no stored shape outside `hits` is closer than the last hit
+  // kNN: true when no stored shape outside `hits` is closer than the last hit.
+  // Range: true when `hits` holds every stored shape within the radius (none left out).
+  bool certified = false;
+};
+
+struct CollectionStatistics {
+  std::size_t shape_count = 0;
+  std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
+  std::size_t store_bytes = 0;          // RocksDB files on disk and memtables (estimate)
+  std::int64_t last_write_unix_ms = 0;  // 0 when nothing was ever written
 };
 
 class Collection {
@@ -96,6 +117,7 @@ class Collection {
 
   const CollectionSettings& settings() const;
   std::size_t size() const;
+  CollectionStatistics statistics() const;
 
   // All or nothing. invalid_argument names the record ("record 3 (id 'x'): ..."); nothing is
   // written then. A later record with the same id as an earlier one in the batch wins.
@@ -108,6 +130,10 @@ class Collection {
   Result<QueryAnswer> nearest(const Shape& query, const QueryOptions& options) const;
   // "More like this": nearest to a stored shape, excluding that shape.
   Result<QueryAnswer> nearest_to_stored(const std::string& id, const QueryOptions& options) const;
+  // Every stored shape within options.radius of the query, nearest first. Candidates are drawn
+  // from the exhaustive L∞ index until the next one's lower bound exceeds the radius, so the
+  // answer is complete (certified) unless max_results was reached.
+  Result<QueryAnswer> within(const Shape& query, const RangeOptions& options) const;
   // The baseline: exact distance to every stored shape. O(n) exact evaluations.
   Result<QueryAnswer> nearest_by_full_scan(const Shape& query, const QueryOptions& options) const;
 

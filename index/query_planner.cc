@@ -7,6 +7,7 @@
 #include <cstring>
 #include <limits>
 #include <optional>
+#include <nlohmann/json.hpp>
 #include <unordered_set>
 
 #include "index/collection_state.h"
@@ -55,81 +56,111 @@ class TopHits {
   std::vector<QueryHit> hits_;
 };
 
-// Scores one stored shape into `top`, applying the bounds and the decision first.
-void score(const PreparedQuery& query, const StoredShape& stored, const Collection::State& state,
-           const QueryOptions& options, TopHits& top, QueryStats& stats) {
-  const double sketch_distance = Sketcher::weighted_distance(query.sketch, stored.sketch);
-  if (options.metric == Metric::sketch) {
-    top.offer({stored.id, sketch_distance, sketch_distance, stored.metadata});
-    return;
-  }
+// The exact distance from the query to `stored` when it can be ≤ threshold (∞: always);
+// nullopt when the sketch bound, the box or endpoint bound or the decision procedure shows it
+// is farther, or the metric does not apply to the stored shape. Cheapest test first.
+std::optional<double> distance_within(const PreparedQuery& query, const StoredShape& stored,
+                                      const Collection::State& state, Metric metric, double threshold,
+                                      QueryStats& stats) {
   std::optional<Path> curve;
-  if (options.metric != Metric::hausdorff) {
+  if (metric != Metric::hausdorff) {
     Result<Path> path = curve_of(stored.shape);
     if (!path) {
       ++stats.not_applicable;
-      return;
+      return std::nullopt;
     }
     curve = std::move(*path);
   }
-  const double worst = top.worst();
-  if (state.sketcher->linf_lower_bound(query.sketch, stored.sketch) > worst) {
+  if (state.sketcher->linf_lower_bound(query.sketch, stored.sketch) > threshold) {
     ++stats.pruned_by_sketch_bound;
-    return;
+    return std::nullopt;
   }
   double cheap = bounding_box_lower_bound(query.prepared.box, bounding_box(stored.shape));
   if (curve) {
     cheap = std::max(cheap, frechet_endpoint_lower_bound(query.curve->front(), query.curve->back(), curve->front(),
                                                          curve->back()));
   }
-  if (cheap > worst) {
+  if (cheap > threshold) {
     ++stats.pruned_by_box_or_endpoint_bound;
-    return;
+    return std::nullopt;
   }
   double distance = 0;
-  if (options.metric == Metric::hausdorff) {
+  if (metric == Metric::hausdorff) {
     const PreparedShape candidate(stored.shape);
-    if (worst < kInfinity && !hausdorff_at_most(query.prepared, candidate, worst)) {
+    if (threshold < kInfinity && !hausdorff_at_most(query.prepared, candidate, threshold)) {
       ++stats.pruned_by_decision;
-      return;
+      return std::nullopt;
     }
     distance = hausdorff(query.prepared, candidate).value;
-  } else if (options.metric == Metric::frechet) {
-    if (worst < kInfinity && !frechet_at_most(*query.curve, *curve, worst)) {
+  } else if (metric == Metric::frechet) {
+    if (threshold < kInfinity && !frechet_at_most(*query.curve, *curve, threshold)) {
       ++stats.pruned_by_decision;
-      return;
+      return std::nullopt;
     }
     distance = frechet(*query.curve, *curve).value;
   } else {
     distance = discrete_frechet(*query.curve, *curve).value;
   }
   ++stats.exact_evaluations;
-  top.offer({stored.id, distance, sketch_distance, stored.metadata});
+  return distance;
 }
 
-Status check_query(const PreparedQuery& query, const QueryOptions& options) {
-  if (options.k == 0) return invalid_argument("k must be at least 1");
-  if ((options.metric == Metric::frechet || options.metric == Metric::discrete_frechet) && !query.curve) {
-    return Status(StatusCode::not_applicable, std::string(metric_name(options.metric)) +
-                                                  " needs a single-curve query (one stroke or one ring)");
+// Scores one stored shape into `top`.
+void score(const PreparedQuery& query, const StoredShape& stored, const Collection::State& state, Metric metric,
+           TopHits& top, QueryStats& stats) {
+  const double sketch_distance = Sketcher::weighted_distance(query.sketch, stored.sketch);
+  if (metric == Metric::sketch) {
+    top.offer({stored.id, sketch_distance, sketch_distance, stored.metadata});
+    return;
   }
-  return Status::ok();
+  if (std::optional<double> distance = distance_within(query, stored, state, metric, top.worst(), stats)) {
+    top.offer({stored.id, *distance, sketch_distance, stored.metadata});
+  }
 }
 
-Result<QueryAnswer> run_query(const Collection::State& state, const Shape& framed, const QueryOptions& options,
-                              std::optional<std::int64_t> excluded_label) {
-  const PreparedQuery query(framed, state);
-  if (Status s = check_query(query, options); !s.is_ok()) return s;
-  const std::size_t stored = state.index->size();
-  const std::size_t budget = options.candidate_budget > 0 ? options.candidate_budget
-                             : options.exact              ? stored
-                                                          : 20 * options.k;
-  QueryAnswer answer;
-  TopHits top(options.k);
-  std::unordered_set<std::int64_t> seen;  // labels already scored (rounds overlap)
-  std::size_t fetch = std::min(budget, std::max<std::size_t>(4 * options.k, 32));
+// Metadata equality filter: every member of the filter object must be present with an equal
+// value. Stored metadata is parsed only for candidates, never for pruned-by-index shapes.
+class MetadataFilter {
+ public:
+  static Result<MetadataFilter> parse(const std::string& text) {
+    MetadataFilter filter;
+    if (text.empty()) return filter;
+    filter.required_ = nlohmann::json::parse(text, nullptr, false);
+    if (!filter.required_.is_object()) {
+      return invalid_argument("metadata filter must be a JSON object", "metadata_filter");
+    }
+    return filter;
+  }
+  bool accepts(const std::string& metadata) const {
+    if (required_.empty()) return true;
+    const nlohmann::json stored = nlohmann::json::parse(metadata, nullptr, false);
+    if (!stored.is_object()) return false;
+    for (const auto& [key, value] : required_.items()) {
+      auto found = stored.find(key);
+      if (found == stored.end() || *found != value) return false;
+    }
+    return true;
+  }
+
+ private:
+  nlohmann::json required_ = nlohmann::json::object();
+};
+
+// Walks the exhaustive index in lower-bound order, in rounds that grow ×4 from `first_fetch`,
+// handing each stored candidate (not excluded, not seen, passing the filter) to `visit`.
+// After each round `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower
+// bound on the exact distance of every shape not drawn yet. Returns whether every stored shape
+// was drawn or ruled out by the bound (so the caller's answer is complete).
+template <typename Visit, typename Enough>
+Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
+                             std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
+                             std::size_t first_fetch, std::size_t budget, QueryStats& stats, Visit visit,
+                             Enough enough) {
+  std::unordered_set<std::int64_t> seen;  // labels already handed out (rounds overlap)
+  const std::size_t extra = excluded_label ? 1 : 0;
+  std::size_t fetch = std::min(budget, first_fetch);
   while (true) {
-    Result<std::vector<Neighbour>> neighbours = state.index->search(query.raw, fetch + (excluded_label ? 1 : 0));
+    Result<std::vector<Neighbour>> neighbours = state.index->search(query.raw, fetch + extra);
     if (!neighbours) return neighbours.status();
     for (const Neighbour& n : *neighbours) {
       if (n.label == excluded_label || !seen.insert(n.label).second) continue;
@@ -145,22 +176,54 @@ Result<QueryAnswer> run_query(const Collection::State& state, const Shape& frame
         if (candidate.status().code() == StatusCode::not_found) continue;  // removed since the search
         return candidate.status();
       }
-      ++answer.stats.candidates_fetched;
-      score(query, *candidate, state, options, top, answer.stats);
+      ++stats.candidates_fetched;
+      if (!filter.accepts(candidate->metadata)) {
+        ++stats.filtered_out;
+        continue;
+      }
+      if (!visit(*candidate)) return false;
     }
-    const std::size_t usable = neighbours->size() - (excluded_label ? 1 : 0);
-    const bool exhausted = neighbours->size() < fetch + (excluded_label ? 1 : 0);
+    if (neighbours->empty() || neighbours->size() < fetch + extra) return true;  // every stored shape drawn
     // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
     // bounds its exact distance from below. The factor allows for float rounding.
-    const double unseen_bound = neighbours->empty() ? kInfinity : neighbours->back().distance * (1 - 1e-5);
-    if (exhausted || (options.metric != Metric::sketch && unseen_bound > top.worst())) {
-      answer.certified = exhausted || unseen_bound > top.worst();
-      break;
-    }
-    // Fast and exact mode grow alike and stop once certified; they differ only in the budget.
-    if (fetch >= budget || usable == 0) break;
+    const double unseen_bound = neighbours->back().distance * (1 - 1e-5);
+    if (enough(unseen_bound)) return true;
+    if (fetch >= budget || neighbours->size() == extra) return false;
     fetch = std::min(budget, fetch * 4);
   }
+}
+
+Status check_query(const PreparedQuery& query, std::size_t k, Metric metric) {
+  if (k == 0) return invalid_argument("k must be at least 1", "k");
+  if ((metric == Metric::frechet || metric == Metric::discrete_frechet) && !query.curve) {
+    return Status(StatusCode::not_applicable,
+                  std::string(metric_name(metric)) + " needs a single-curve query (one stroke or one ring)");
+  }
+  return Status::ok();
+}
+
+Result<QueryAnswer> run_query(const Collection::State& state, const Shape& framed, const QueryOptions& options,
+                              std::optional<std::int64_t> excluded_label) {
+  const PreparedQuery query(framed, state);
+  if (Status s = check_query(query, options.k, options.metric); !s.is_ok()) return s;
+  Result<MetadataFilter> filter = MetadataFilter::parse(options.metadata_filter);
+  if (!filter) return filter.status();
+  const std::size_t budget = options.candidate_budget > 0 ? options.candidate_budget
+                             : options.exact              ? state.index->size()
+                                                          : 20 * options.k;
+  QueryAnswer answer;
+  TopHits top(options.k);
+  // Fast and exact mode walk alike and stop once certified; they differ only in the budget.
+  // Metric::sketch has no exact distance to certify against: it stops only at the budget.
+  Result<bool> complete = walk_candidates(
+      state, query, excluded_label, *filter, std::max<std::size_t>(4 * options.k, 32), budget, answer.stats,
+      [&](const StoredShape& candidate) {
+        score(query, candidate, state, options.metric, top, answer.stats);
+        return true;
+      },
+      [&](double unseen_bound) { return options.metric != Metric::sketch && unseen_bound > top.worst(); });
+  if (!complete) return complete.status();
+  answer.certified = *complete;
   answer.hits = top.take();
   return answer;
 }
@@ -187,10 +250,48 @@ Result<QueryAnswer> Collection::nearest_to_stored(const std::string& id, const Q
   return run_query(*state_, stored->shape, options, stored->label);
 }
 
+Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& options) const {
+  if (Status s = validate(query, state_->settings.limits); !s.is_ok()) return s;
+  if (!(options.radius >= 0) || !std::isfinite(options.radius)) {
+    return invalid_argument("radius must be a finite number ≥ 0", "radius");
+  }
+  if (options.metric == Metric::sketch) {
+    return invalid_argument("a range query needs an exact metric (hausdorff, frechet or discrete-frechet)", "metric");
+  }
+  if (options.max_results == 0) return invalid_argument("max_results must be at least 1", "max_results");
+  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_);
+  if (Status s = check_query(prepared, 1, options.metric); !s.is_ok()) return s;
+  Result<MetadataFilter> filter = MetadataFilter::parse(options.metadata_filter);
+  if (!filter) return filter.status();
+  QueryAnswer answer;
+  bool truncated = false;
+  Result<bool> complete = walk_candidates(
+      *state_, prepared, std::nullopt, *filter, 64, state_->index->size(), answer.stats,
+      [&](const StoredShape& candidate) {
+        if (std::optional<double> distance =
+                distance_within(prepared, candidate, *state_, options.metric, options.radius, answer.stats);
+            distance && *distance <= options.radius) {
+          answer.hits.push_back({candidate.id, *distance, Sketcher::weighted_distance(prepared.sketch, candidate.sketch),
+                                 candidate.metadata});
+          if (answer.hits.size() >= options.max_results) {
+            truncated = true;
+            return false;
+          }
+        }
+        return true;
+      },
+      // The budget is every stored shape, so the walk ends once no unseen shape can be in range.
+      [&](double unseen_bound) { return unseen_bound > options.radius; });
+  if (!complete) return complete.status();
+  answer.certified = *complete && !truncated;
+  std::sort(answer.hits.begin(), answer.hits.end(), by_distance_then_id);
+  return answer;
+}
+
 Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const QueryOptions& options) const {
   if (Status s = validate(query, state_->settings.limits); !s.is_ok()) return s;
   const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_);
-  if (Status s = check_query(prepared, options); !s.is_ok()) return s;
+  if (Status s = check_query(prepared, options.k, options.metric); !s.is_ok()) return s;
   QueryAnswer answer;
   TopHits top(options.k);
   // No bounds: every stored shape gets its exact distance, so this is an independent baseline.
@@ -203,7 +304,7 @@ Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const Q
     ++answer.stats.candidates_fetched;
     TopHits single(1);
     QueryStats ignored;
-    score(prepared, *stored, *state_, options, single, ignored);  // top of 1 with worst = ∞: never pruned
+    score(prepared, *stored, *state_, options.metric, single, ignored);  // top of 1 with worst = ∞: never pruned
     answer.stats.not_applicable += ignored.not_applicable;
     answer.stats.exact_evaluations += ignored.exact_evaluations;
     for (QueryHit& hit : single.take()) top.offer(std::move(hit));

@@ -30,6 +30,13 @@ std::size_t VectorIndex::size() const {
   return static_cast<std::size_t>(index_->ntotal);
 }
 
+std::size_t VectorIndex::memory_bytes() const {
+  std::shared_lock lock(mutex_);
+  const std::size_t n = static_cast<std::size_t>(index_->ntotal);
+  // Flat codes, IDMap2's label array, and its reverse hash map (key, value, node pointer, bucket).
+  return n * (dimension_ * sizeof(float) + sizeof(std::int64_t) + 4 * sizeof(std::int64_t));
+}
+
 Status VectorIndex::add(std::span<const std::int64_t> labels, std::span<const float> vectors) {
   if (vectors.size() != labels.size() * dimension_) return Status(StatusCode::internal, "vector count mismatch");
   if (labels.empty()) return Status::ok();

@@ -42,6 +42,8 @@ class VectorIndex {
 
   std::size_t dimension() const { return dimension_; }
   std::size_t size() const;
+  // Memory held by the vectors and their labels (the FAISS arrays), in bytes.
+  std::size_t memory_bytes() const;
 
   // vectors.size() == labels.size() × dimension(). A label already present must be removed first.
   Status add(std::span<const std::int64_t> labels, std::span<const float> vectors);

@@ -2,9 +2,13 @@
 // restart, upsert and delete, all-or-nothing batches, damaged records.
 #include <catch2/catch.hpp>
 #include <filesystem>
+#include <nlohmann/json.hpp>
+#include <thread>
 
 #include "index/collection.h"
 #include "index/shape_codec.h"
+#include "sketch/distance/frechet.h"
+#include "sketch/distance/hausdorff.h"
 #include "support/random_shapes.h"
 #include "support/recall.h"
 #include "support/shape_helpers.h"
@@ -40,7 +44,8 @@ std::vector<ShapeRecord> synthetic_records(std::size_t count, std::uint64_t seed
   std::vector<ShapeRecord> records;
   for (std::size_t i = 0; i < count; ++i) {
     const Shape shape = testing::jittered(templates[random.below(templates.size())], random, 0.3);
-    records.push_back({"shape-" + std::to_string(i), shape, "{\"n\":" + std::to_string(i) + "}"});
+    records.push_back({"shape-" + std::to_string(i), shape,
+                       "{\"n\":" + std::to_string(i) + ",\"group\":\"g" + std::to_string(i % 3) + "\"}"});
   }
   return records;
 }
@@ -205,4 +210,165 @@ TEST_CASE("FrechetQueryOnSeveralStrokesIsNotApplicable") {
   options.metric = Metric::frechet;
   Result<QueryAnswer> answer = (*collection)->nearest(testing::wkt("MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))"), options);
   CHECK(answer.status().code() == StatusCode::not_applicable);
+}
+
+// Every stored shape with its exact distance, nearest first: the full scan with k = all.
+std::vector<QueryHit> all_by_full_scan(const Collection& collection, const Shape& query, Metric metric) {
+  QueryOptions options;
+  options.metric = metric;
+  options.k = collection.size();
+  Result<QueryAnswer> scan = collection.nearest_by_full_scan(query, options);
+  REQUIRE(scan.is_ok());
+  return scan->hits;
+}
+
+TEST_CASE("RangeQueryReturnsExactlyTheShapesWithinTheRadius") {
+  TemporaryDirectory directory;
+  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
+  REQUIRE(collection.is_ok());
+  const std::vector<ShapeRecord> records = synthetic_records(1200, 21);
+  REQUIRE((*collection)->upsert(records).is_ok());
+  SeededRandom random(22);
+  for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
+    for (int q = 0; q < 6; ++q) {
+      const Shape query = records[random.below(records.size())].shape;
+      const std::vector<QueryHit> everything = all_by_full_scan(**collection, query, metric);
+      // A radius between two stored distances (the 5th to the 60th nearest), so the boundary
+      // is never a tie.
+      const std::size_t cut = 5 + random.below(55);
+      RangeOptions options;
+      options.metric = metric;
+      options.radius = 0.5 * (everything[cut - 1].distance + everything[cut].distance);
+      Result<QueryAnswer> range = (*collection)->within(query, options);
+      REQUIRE(range.is_ok());
+      INFO(metric_name(metric) << " query " << q << " radius " << options.radius);
+      CHECK(range->certified);
+      require_same(*range, QueryAnswer{std::vector<QueryHit>(everything.begin(), everything.begin() + cut), {}, true});
+      CHECK(range->stats.candidates_fetched < records.size());  // the L∞ bound stopped the walk early
+      options.max_results = 3;
+      Result<QueryAnswer> truncated = (*collection)->within(query, options);
+      REQUIRE(truncated.is_ok());
+      CHECK(truncated->hits.size() == 3);
+      CHECK_FALSE(truncated->certified);
+    }
+  }
+  RangeOptions sketch_range;
+  sketch_range.metric = Metric::sketch;
+  CHECK((*collection)->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
+  sketch_range.metric = Metric::hausdorff;
+  sketch_range.radius = -1;
+  CHECK((*collection)->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
+}
+
+TEST_CASE("MetadataFilterMatchesAFilteredFullScan") {
+  TemporaryDirectory directory;
+  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
+  REQUIRE(collection.is_ok());
+  const std::vector<ShapeRecord> records = synthetic_records(900, 23);
+  REQUIRE((*collection)->upsert(records).is_ok());
+  SeededRandom random(24);
+  for (int q = 0; q < 6; ++q) {
+    const Shape query = records[random.below(records.size())].shape;
+    const std::string group = "g" + std::to_string(q % 3);
+    std::vector<QueryHit> expected;
+    for (QueryHit& hit : all_by_full_scan(**collection, query, Metric::hausdorff)) {
+      if (nlohmann::json::parse(hit.metadata).at("group") == group && expected.size() < 10) expected.push_back(hit);
+    }
+    QueryOptions options;
+    options.exact = true;
+    options.metadata_filter = "{\"group\": \"" + group + "\"}";
+    Result<QueryAnswer> filtered = (*collection)->nearest(query, options);
+    REQUIRE(filtered.is_ok());
+    CHECK(filtered->certified);
+    CHECK(filtered->stats.filtered_out > 0);
+    require_same(*filtered, QueryAnswer{expected, {}, true});
+  }
+  QueryOptions bad;
+  bad.metadata_filter = "[1, 2]";
+  Result<QueryAnswer> refused = (*collection)->nearest(records[0].shape, bad);
+  CHECK(refused.status().code() == StatusCode::invalid_argument);
+  CHECK(refused.status().where() == "metadata_filter");
+  bad.metadata_filter = "{\"group\": \"no such group\"}";
+  Result<QueryAnswer> none = (*collection)->nearest(records[0].shape, bad);
+  REQUIRE(none.is_ok());
+  CHECK(none->hits.empty());
+}
+
+TEST_CASE("StatisticsAndDefaultMetricSurviveRestart") {
+  TemporaryDirectory directory;
+  CollectionSettings settings = settings_with(16);
+  settings.default_metric = Metric::frechet;
+  {
+    Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings);
+    REQUIRE(collection.is_ok());
+    CHECK((*collection)->statistics().last_write_unix_ms == 0);
+    REQUIRE((*collection)->upsert(synthetic_records(50, 25)).is_ok());
+  }
+  Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path);
+  REQUIRE(reopened.is_ok());
+  CHECK((*reopened)->settings().default_metric == Metric::frechet);
+  const CollectionStatistics statistics = (*reopened)->statistics();
+  CHECK(statistics.shape_count == 50);
+  CHECK(statistics.index_bytes >= 50 * 16 * sizeof(float));
+  CHECK(statistics.store_bytes > 0);
+  const auto now_ms = std::chrono::duration_cast<std::chrono::milliseconds>(
+                          std::chrono::system_clock::now().time_since_epoch()).count();
+  CHECK(statistics.last_write_unix_ms > now_ms - 600'000);
+  CHECK(statistics.last_write_unix_ms <= now_ms);
+}
+
+// Queries run while another thread ingests, upserts and deletes. Every answer must be
+// internally right: each hit's distance is the exact distance to what is stored under its id
+// (or the id was deleted or replaced meanwhile), and hits are in order.
+TEST_CASE("QueriesRunCorrectlyDuringIngest") {
+  TemporaryDirectory directory;
+  Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings_with(32));
+  REQUIRE(created.is_ok());
+  Collection& collection = **created;
+  const std::vector<ShapeRecord> records = synthetic_records(3000, 27);
+  REQUIRE(collection.upsert(std::span(records).first(500)).is_ok());
+  std::atomic<bool> writing = true;
+  std::thread writer([&] {
+    for (std::size_t start = 500; start < records.size(); start += 250) {
+      if (!collection.upsert(std::span(records).subspan(start, 250)).is_ok()) break;
+      const std::vector<std::string> gone = {records[start - 500].id, records[start - 499].id};
+      if (!collection.remove(gone).is_ok()) break;
+    }
+    writing = false;
+  });
+  std::atomic<int> answers = 0, wrong = 0, failures = 0;
+  auto reader = [&](std::uint64_t seed) {
+    SeededRandom random(seed);
+    while (writing || answers < 40) {
+      const Shape query = records[random.below(records.size())].shape;
+      QueryOptions options;
+      options.metric = random.below(2) ? Metric::hausdorff : Metric::frechet;
+      options.exact = random.below(2) == 0;
+      Result<QueryAnswer> answer = collection.nearest(query, options);
+      if (!answer) {
+        ++failures;
+        continue;
+      }
+      ++answers;
+      for (std::size_t i = 0; i < answer->hits.size(); ++i) {
+        const QueryHit& hit = answer->hits[i];
+        if (i > 0 && hit.distance < answer->hits[i - 1].distance) ++wrong;
+        Result<ShapeRecord> stored = collection.get(hit.id);
+        if (!stored) continue;  // deleted since
+        const Shape framed = apply_frame(query, Frame::unit);
+        const double exact = options.metric == Metric::hausdorff ? hausdorff(framed, stored->shape).value
+                                                                 : frechet(framed, stored->shape)->value;
+        if (std::abs(exact - hit.distance) > 1e-9) ++wrong;
+      }
+    }
+  };
+  std::thread reader_a(reader, 28), reader_b(reader, 29);
+  writer.join();
+  reader_a.join();
+  reader_b.join();
+  INFO("answers " << answers << ", wrong " << wrong << ", failures " << failures);
+  CHECK(failures == 0);
+  CHECK(wrong == 0);
+  CHECK(answers >= 40);
+  CHECK(collection.size() == records.size() - 2 * ((records.size() - 500) / 250));
 }
