@@ -16,6 +16,8 @@ namespace {
 using Json = nlohmann::json;
 
 constexpr const char* kManifestKey = "manifest";
+// 2: geometry stored as given (1 stored it framed; no such store was ever released).
+constexpr int kFormat = 2;
 constexpr const char* kShapePrefix = "s/";
 constexpr const char* kLastWriteKey = "last_write";  // u64 milliseconds since the Unix epoch
 
@@ -40,7 +42,7 @@ std::string encode_record(std::int64_t label, const Shape& shape, std::span<cons
 }
 
 Json manifest_json(const CollectionSettings& settings) {
-  return {{"format", 1},
+  return {{"format", kFormat},
           {"frame", frame_name(settings.frame)},
           {"landmarks", to_landmark_file(settings.landmarks)},
           {"max_vertices", settings.limits.max_vertices},
@@ -54,6 +56,11 @@ Result<CollectionSettings> parse_manifest(const std::string& text) {
   CollectionSettings settings;
   try {
     const Json json = Json::parse(text);
+    if (json.at("format").get<int>() != kFormat) {
+      return Status(StatusCode::failed_precondition, "store: format " + json.at("format").dump() +
+                                                         " is not supported (this build reads format " +
+                                                         std::to_string(kFormat) + ")");
+    }
     Result<Frame> frame = parse_frame(json.at("frame").get<std::string>());
     if (!frame) return frame.status();
     Result<LandmarkSet> landmarks = parse_landmark_file(json.at("landmarks").get<std::string>());
@@ -132,12 +139,18 @@ Result<StoredShape> decode_record(const std::string& id, std::string_view bytes,
   return stored;
 }
 
-Result<StoredShape> Collection::State::load(const std::string& id) const {
+Result<StoredShape> Collection::State::load_as_given(const std::string& id) const {
   std::string value;
   const rocksdb::Status status = database->Get(rocksdb::ReadOptions(), shape_key(id), &value);
   if (status.IsNotFound()) return Status(StatusCode::not_found, "no shape with id '" + id + "'");
   if (Status s = from_rocksdb(status, "reading '" + id + "'"); !s.is_ok()) return s;
   return decode_record(id, value, sketcher->dimension(), settings.limits);
+}
+
+Result<StoredShape> Collection::State::load(const std::string& id) const {
+  Result<StoredShape> stored = load_as_given(id);
+  if (stored) stored->shape = apply_frame(stored->shape, settings.frame);
+  return stored;
 }
 
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
@@ -229,6 +242,21 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 
+Status Collection::check(const ShapeRecord& record) const {
+  const CollectionSettings& settings = state_->settings;
+  if (record.id.empty() || record.id.size() > settings.max_id_bytes) {
+    return invalid_argument("id must be 1 to " + std::to_string(settings.max_id_bytes) + " bytes", "id");
+  }
+  if (record.metadata.size() > settings.max_metadata_bytes) {
+    return Status(StatusCode::resource_exhausted,
+                  "metadata is over " + std::to_string(settings.max_metadata_bytes) + " bytes", "metadata");
+  }
+  if (const Json metadata = Json::parse(record.metadata, nullptr, false); !metadata.is_object()) {
+    return invalid_argument("metadata must be a JSON object", "metadata");
+  }
+  return validate(record.shape, settings.limits);
+}
+
 Status Collection::upsert(std::span<const ShapeRecord> batch) {
   State& state = *state_;
   const std::size_t dimension = state.sketcher->dimension();
@@ -236,22 +264,11 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   std::vector<Shape> framed;
   framed.reserve(batch.size());
   for (std::size_t i = 0; i < batch.size(); ++i) {
-    const ShapeRecord& record = batch[i];
-    const std::string which = "record " + std::to_string(i) + " (id '" + record.id.substr(0, 64) + "')";
-    if (record.id.empty() || record.id.size() > state.settings.max_id_bytes) {
-      return invalid_argument(which + ": id must be 1 to " + std::to_string(state.settings.max_id_bytes) + " bytes");
+    if (Status s = check(batch[i]); !s.is_ok()) {
+      return Status(s.code(), "record " + std::to_string(i) + " (id '" + batch[i].id.substr(0, 64) + "'): " + s.message(),
+                    s.where());
     }
-    if (record.metadata.size() > state.settings.max_metadata_bytes) {
-      return Status(StatusCode::resource_exhausted, which + ": metadata is over " +
-                                                        std::to_string(state.settings.max_metadata_bytes) + " bytes");
-    }
-    if (const Json metadata = Json::parse(record.metadata, nullptr, false); !metadata.is_object()) {
-      return invalid_argument(which + ": metadata must be a JSON object");
-    }
-    if (Status s = validate(record.shape, state.settings.limits); !s.is_ok()) {
-      return Status(s.code(), which + ": " + s.message(), s.where());
-    }
-    framed.push_back(apply_frame(record.shape, state.settings.frame));
+    framed.push_back(apply_frame(batch[i].shape, state.settings.frame));
   }
 
   // A later record with the same id wins, so only each id's last record is stored at all.
@@ -280,7 +297,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   for (std::size_t i : winners) {
     new_labels.push_back(next_label++);
     state.sketcher->sketch(framed[i], sketch);
-    write.Put(shape_key(batch[i].id), encode_record(new_labels.back(), framed[i], sketch, batch[i].metadata));
+    write.Put(shape_key(batch[i].id), encode_record(new_labels.back(), batch[i].shape, sketch, batch[i].metadata));
     const std::vector<float> raw = state.sketcher->unweighted(sketch);
     index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
   }
@@ -329,6 +346,23 @@ Status Collection::remove(std::span<const std::string> ids) {
   return Status::ok();
 }
 
+Result<std::vector<ShapeRecord>> Collection::list(const std::string& after, std::size_t limit) const {
+  std::vector<ShapeRecord> page;
+  std::unique_ptr<rocksdb::Iterator> it(state_->database->NewIterator(rocksdb::ReadOptions()));
+  const std::string start = shape_key(after);
+  it->Seek(start);
+  if (it->Valid() && !after.empty() && it->key() == start) it->Next();
+  for (; it->Valid() && it->key().starts_with(kShapePrefix) && page.size() < limit; it->Next()) {
+    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
+    Result<StoredShape> stored =
+        decode_record(id, it->value().ToStringView(), state_->sketcher->dimension(), state_->settings.limits);
+    if (!stored) return stored.status();
+    page.push_back({id, std::move(stored->shape), std::move(stored->metadata)});
+  }
+  if (Status s = from_rocksdb(it->status(), "listing records"); !s.is_ok()) return s;
+  return page;
+}
+
 CollectionStatistics Collection::statistics() const {
   CollectionStatistics statistics;
   {
@@ -354,7 +388,7 @@ CollectionStatistics Collection::statistics() const {
 }
 
 Result<ShapeRecord> Collection::get(const std::string& id) const {
-  Result<StoredShape> stored = state_->load(id);
+  Result<StoredShape> stored = state_->load_as_given(id);
   if (!stored) return stored.status();
   return ShapeRecord{stored->id, std::move(stored->shape), std::move(stored->metadata)};
 }

@@ -1,8 +1,8 @@
 // A durable shape collection and its query engine.
 //
 // A collection lives in its own directory: a RocksDB database holding a manifest (frame,
-// landmark set, limits) and one record per shape (its caller id, geometry in the collection's
-// frame, sketch vector, index label, metadata JSON); layout in index/STORE_FORMAT.md. The
+// landmark set, limits) and one record per shape (its caller id, geometry as given, sketch
+// vector of the framed geometry, index label, metadata JSON); layout in index/STORE_FORMAT.md. The
 // vector index is derived: open() rebuilds it from the stored sketches.
 //
 // Writes: upsert() and remove() apply a whole batch or nothing, and return only after the
@@ -50,7 +50,7 @@ struct CollectionSettings {
 
 struct ShapeRecord {
   std::string id;
-  Shape shape;                 // as given (upsert) or in the collection's frame (get)
+  Shape shape;                 // as given by the caller; stored so, framed only for comparison
   std::string metadata = "{}";  // a JSON object, as text
 };
 
@@ -119,12 +119,18 @@ class Collection {
   std::size_t size() const;
   CollectionStatistics statistics() const;
 
+  // Would `record` be accepted by upsert()? The same checks, with where() naming the field
+  // ("id", "metadata") or the vertex. Lets a bulk loader set bad records aside one by one.
+  Status check(const ShapeRecord& record) const;
   // All or nothing. invalid_argument names the record ("record 3 (id 'x'): ..."); nothing is
   // written then. A later record with the same id as an earlier one in the batch wins.
   Status upsert(std::span<const ShapeRecord> batch);
   // Ids that are not stored are ignored. All or nothing, durable on return.
   Status remove(std::span<const std::string> ids);
   Result<ShapeRecord> get(const std::string& id) const;
+  // Up to `limit` records with ids after `after` in byte order ("" = from the first): pages
+  // for export. A page is read from one consistent view of the store.
+  Result<std::vector<ShapeRecord>> list(const std::string& after, std::size_t limit) const;
 
   // The query shape is given in input coordinates; the collection's frame is applied to it.
   Result<QueryAnswer> nearest(const Shape& query, const QueryOptions& options) const;

@@ -20,7 +20,7 @@ namespace waymark {
 struct StoredShape {
   std::string id;
   std::int64_t label = 0;
-  Shape shape;  // in the collection's frame
+  Shape shape;  // as given by decode_record; in the collection's frame from State::load
   std::vector<float> sketch;
   std::string metadata;
 };
@@ -38,7 +38,8 @@ struct Collection::State {
   std::int64_t next_label = 1;
   std::mutex write_mutex;  // writes are serialised
 
-  Result<StoredShape> load(const std::string& id) const;
+  Result<StoredShape> load(const std::string& id) const;  // shape framed, for queries
+  Result<StoredShape> load_as_given(const std::string& id) const;
 };
 
 std::string shape_key(const std::string& id);

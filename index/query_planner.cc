@@ -183,7 +183,9 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
       }
       if (!visit(*candidate)) return false;
     }
-    if (neighbours->empty() || neighbours->size() < fetch + extra) return true;  // every stored shape drawn
+    // Every stored shape drawn? (A size read after the search can only be larger if shapes were
+    // added meanwhile, which makes this conservative.)
+    if (neighbours->size() < fetch + extra || neighbours->size() >= state.index->size()) return true;
     // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
     // bounds its exact distance from below. The factor allows for float rounding.
     const double unseen_bound = neighbours->back().distance * (1 - 1e-5);
@@ -301,6 +303,7 @@ Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const Q
     Result<StoredShape> stored = decode_record(it->key().ToString().substr(prefix.size()), it->value().ToStringView(),
                                                state_->sketcher->dimension(), state_->settings.limits);
     if (!stored) return stored.status();
+    stored->shape = apply_frame(stored->shape, state_->settings.frame);
     ++answer.stats.candidates_fetched;
     TopHits single(1);
     QueryStats ignored;

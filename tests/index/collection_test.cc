@@ -143,8 +143,8 @@ TEST_CASE("RestartReadsEverythingBack") {
   require_same(*(*reopened)->nearest(records[0].shape, options), before);
   Result<ShapeRecord> got = (*reopened)->get("shape-17");
   REQUIRE(got.is_ok());
-  CHECK(got->metadata == "{\"n\":17}");
-  CHECK(got->shape == apply_frame(records[17].shape, Frame::unit));
+  CHECK(got->metadata == records[17].metadata);
+  CHECK(got->shape == records[17].shape);  // the caller's coordinates, not the framed ones
   CHECK(Collection::create(directory.path, settings_with(32)).status().code() == StatusCode::already_exists);
   // Opening a path with no collection fails cleanly and creates nothing there.
   const std::filesystem::path missing = directory.path / "nothing-here";
@@ -356,8 +356,9 @@ TEST_CASE("QueriesRunCorrectlyDuringIngest") {
         Result<ShapeRecord> stored = collection.get(hit.id);
         if (!stored) continue;  // deleted since
         const Shape framed = apply_frame(query, Frame::unit);
-        const double exact = options.metric == Metric::hausdorff ? hausdorff(framed, stored->shape).value
-                                                                 : frechet(framed, stored->shape)->value;
+        const Shape stored_framed = apply_frame(stored->shape, Frame::unit);
+        const double exact = options.metric == Metric::hausdorff ? hausdorff(framed, stored_framed).value
+                                                                 : frechet(framed, stored_framed)->value;
         if (std::abs(exact - hit.distance) > 1e-9) ++wrong;
       }
     }

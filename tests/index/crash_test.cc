@@ -75,7 +75,7 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
       Result<ShapeRecord> record = (*collection)->get("shape-" + std::to_string(id));
       REQUIRE(record.is_ok());
       SeededRandom random(id);
-      const Shape expected = apply_frame(testing::random_walk(random, 8 + random.below(40)), Frame::unit);
+      const Shape expected = testing::random_walk(random, 8 + random.below(40));
       CHECK(record->shape == expected);
     }
     // Stored sketches equal fresh sketches: a query by each shape finds it at sketch distance 0.

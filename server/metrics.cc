@@ -1,0 +1,112 @@
+#include "server/metrics.h"
+
+#include <sstream>
+
+namespace waymark::server {
+namespace {
+
+// Label values escaped as the exposition format requires (backslash, quote, newline).
+std::string label(const std::string& value) {
+  std::string out;
+  for (char c : value) {
+    if (c == '\\' || c == '"') out += '\\';
+    if (c == '\n') {
+      out += "\\n";
+      continue;
+    }
+    out += c;
+  }
+  return out;
+}
+
+void header(std::ostringstream& out, const char* name, const char* type, const char* help) {
+  out << "# HELP " << name << ' ' << help << "\n# TYPE " << name << ' ' << type << '\n';
+}
+
+}  // namespace
+
+void Metrics::record_request(const std::string& method, const std::string& route, int status, double seconds) {
+  std::lock_guard lock(mutex_);
+  ++requests_[{method, route, status}];
+  Histogram& histogram = latency_[route];
+  std::size_t bucket = 0;
+  while (bucket < kBucketBounds.size() && seconds > kBucketBounds[bucket]) ++bucket;
+  if (bucket < kBucketBounds.size()) ++histogram.buckets[bucket];
+  ++histogram.count;
+  histogram.sum += seconds;
+}
+
+void Metrics::record_ingest(std::size_t accepted, std::size_t rejected) {
+  std::lock_guard lock(mutex_);
+  ingest_accepted_ += accepted;
+  ingest_rejected_ += rejected;
+}
+
+void Metrics::record_query(const QueryCounts& counts) {
+  std::lock_guard lock(mutex_);
+  ++queries_;
+  if (counts.certified) ++queries_certified_;
+  candidates_ += counts.candidates;
+  pruned_ += counts.pruned;
+  exact_evaluations_ += counts.exact_evaluations;
+}
+
+void Metrics::set_queries_waiting(std::size_t count) {
+  std::lock_guard lock(mutex_);
+  queries_waiting_ = count;
+}
+
+std::string Metrics::exposition(const std::vector<CollectionGauges>& collections) const {
+  std::lock_guard lock(mutex_);
+  std::ostringstream out;
+  out.precision(10);
+  header(out, "waymark_http_requests_total", "counter", "HTTP requests by method, route pattern and status.");
+  for (const auto& [key, count] : requests_) {
+    const auto& [method, route, status] = key;
+    out << "waymark_http_requests_total{method=\"" << label(method) << "\",route=\"" << label(route)
+        << "\",status=\"" << status << "\"} " << count << '\n';
+  }
+  header(out, "waymark_http_request_duration_seconds", "histogram", "Time from a whole request read to its reply.");
+  for (const auto& [route, histogram] : latency_) {
+    std::uint64_t cumulative = 0;
+    for (std::size_t b = 0; b < kBucketBounds.size(); ++b) {
+      cumulative += histogram.buckets[b];
+      out << "waymark_http_request_duration_seconds_bucket{route=\"" << label(route) << "\",le=\"" << kBucketBounds[b]
+          << "\"} " << cumulative << '\n';
+    }
+    out << "waymark_http_request_duration_seconds_bucket{route=\"" << label(route) << "\",le=\"+Inf\"} "
+        << histogram.count << '\n';
+    out << "waymark_http_request_duration_seconds_sum{route=\"" << label(route) << "\"} " << histogram.sum << '\n';
+    out << "waymark_http_request_duration_seconds_count{route=\"" << label(route) << "\"} " << histogram.count << '\n';
+  }
+  header(out, "waymark_ingest_shapes_total", "counter", "Shapes offered to bulk ingest, by outcome.");
+  out << "waymark_ingest_shapes_total{outcome=\"accepted\"} " << ingest_accepted_ << '\n';
+  out << "waymark_ingest_shapes_total{outcome=\"rejected\"} " << ingest_rejected_ << '\n';
+  header(out, "waymark_queries_total", "counter", "kNN and range queries answered.");
+  out << "waymark_queries_total " << queries_ << '\n';
+  header(out, "waymark_queries_certified_total", "counter", "Queries whose answer was certified exact or complete.");
+  out << "waymark_queries_certified_total " << queries_certified_ << '\n';
+  header(out, "waymark_query_candidates_total", "counter", "Candidates drawn from vector indexes.");
+  out << "waymark_query_candidates_total " << candidates_ << '\n';
+  header(out, "waymark_query_pruned_total", "counter", "Candidates ruled out by a lower bound or the decision procedure.");
+  out << "waymark_query_pruned_total " << pruned_ << '\n';
+  header(out, "waymark_query_exact_evaluations_total", "counter", "Exact distance computations.");
+  out << "waymark_query_exact_evaluations_total " << exact_evaluations_ << '\n';
+  header(out, "waymark_queries_waiting", "gauge", "Queries queued or running on the worker pool.");
+  out << "waymark_queries_waiting " << queries_waiting_ << '\n';
+  header(out, "waymark_collection_shapes", "gauge", "Shapes stored, by collection.");
+  for (const CollectionGauges& c : collections) {
+    out << "waymark_collection_shapes{collection=\"" << label(c.name) << "\"} " << c.shapes << '\n';
+  }
+  header(out, "waymark_collection_index_bytes", "gauge", "Memory of the vector index and id maps, by collection.");
+  for (const CollectionGauges& c : collections) {
+    out << "waymark_collection_index_bytes{collection=\"" << label(c.name) << "\"} " << c.index_bytes << '\n';
+  }
+  header(out, "waymark_collection_store_bytes", "gauge", "Store files and memtables, by collection.");
+  for (const CollectionGauges& c : collections) {
+    out << "waymark_collection_store_bytes{collection=\"" << label(c.name) << "\"} " << c.store_bytes << '\n';
+  }
+  return out.str();
+}
+
+}  // namespace waymark::server

@@ -1,0 +1,390 @@
+"""Black-box tests of waymarkd: starts the real server on 127.0.0.1 (ephemeral port, temporary
+data directory), drives it with Python's http.client, restarts it and reads everything back.
+
+Usage: server_test.py WAYMARKD_BINARY
+Standard library only. Exact answers are checked against the server's own /v1/distance on every
+stored shape (a brute-force scan through the API); the distance routines themselves are checked
+against GEOS, SciPy and Shapely in tests/sketch.
+"""
+import concurrent.futures
+import http.client
+import json
+import os
+import shutil
+import signal
+import socket
+import ssl
+import subprocess
+import sys
+import tempfile
+import time
+
+WAYMARKD = sys.argv[1]
+WRITE = "test-write-token-0123456789"
+READ = "test-read-token-0123456789"
+failures = []
+checks_run = [0]
+
+
+def check(condition, message):
+    checks_run[0] += 1
+    if not condition:
+        failures.append(message)
+        print("FAIL:", message, flush=True)
+
+
+class Server:
+    def __init__(self, data_directory, *flags, tls=None):
+        self.tls = tls
+        environment = dict(os.environ, WAYMARK_WRITE_TOKENS=WRITE, WAYMARK_READ_TOKENS=READ)
+        arguments = [WAYMARKD, "--data-directory", data_directory, "--port", "0"]
+        self.process = subprocess.Popen(arguments + list(flags), stdout=subprocess.PIPE, stderr=subprocess.STDOUT,
+                                        env=environment, text=True)
+        self.log = []
+        deadline = time.time() + 30
+        self.port = None
+        while time.time() < deadline and self.port is None:
+            line = self.process.stdout.readline()
+            if not line:
+                break
+            self.log.append(line)
+            if "listening on" in line:
+                self.port = int(line.rsplit(":", 1)[1])
+        assert self.port, "waymarkd did not start:\n" + "".join(self.log)
+        # Drain the log in the background so the server never blocks on a full pipe.
+        import threading
+        threading.Thread(target=self._drain, daemon=True).start()
+        while self.call("GET", "/readyz")[0] != 200:
+            assert time.time() < deadline, "waymarkd did not become ready"
+            time.sleep(0.05)
+
+    def _drain(self):
+        for line in self.process.stdout:
+            self.log.append(line)
+
+    def connection(self):
+        if self.tls:
+            context = ssl.create_default_context(cafile=self.tls)
+            context.check_hostname = False
+            return http.client.HTTPSConnection("127.0.0.1", self.port, context=context, timeout=30)
+        return http.client.HTTPConnection("127.0.0.1", self.port, timeout=30)
+
+    def call(self, method, path, body=None, token=None, raw=None, connection=None, headers=None):
+        own = connection is None
+        connection = connection or self.connection()
+        all_headers = dict(headers or {})
+        if token:
+            all_headers["Authorization"] = "Bearer " + token
+        data = raw if raw is not None else (json.dumps(body) if body is not None else None)
+        connection.request(method, path, body=data, headers=all_headers)
+        response = connection.getresponse()
+        text = response.read().decode()
+        if own:
+            connection.close()
+        try:
+            parsed = json.loads(text) if response.getheader("Content-Type", "").startswith("application/json") else text
+        except json.JSONDecodeError:
+            parsed = text
+        return response.status, parsed
+
+    def stop(self):
+        self.process.send_signal(signal.SIGTERM)
+        code = self.process.wait(timeout=30)
+        return code
+
+
+def error_code(reply):
+    return reply.get("error", {}).get("code") if isinstance(reply, dict) else None
+
+
+def expect_error(server, method, path, body, status, code, token=WRITE, raw=None, where=None, label=""):
+    got_status, reply = server.call(method, path, body, token=token, raw=raw)
+    check(got_status == status and error_code(reply) == code,
+          f"{label or method + ' ' + path}: expected {status} {code}, got {got_status} {reply}")
+    if where is not None:
+        check(reply.get("error", {}).get("where", "").startswith(where),
+              f"{label}: expected where starting {where!r}, got {reply}")
+    return reply
+
+
+# Invented parts: brackets (L shapes), gaskets (rings), clips (open strokes), seeded.
+def catalogue(count, seed=7):
+    import random
+    rng = random.Random(seed)
+    lines = []
+    for i in range(count):
+        kind = i % 3
+        if kind == 0:
+            w, h, t = rng.uniform(20, 60), rng.uniform(20, 50), rng.uniform(3, 8)
+            geometry = f"POLYGON ((0 0, {w:.3f} 0, {w:.3f} {t:.3f}, {t:.3f} {t:.3f}, {t:.3f} {h:.3f}, 0 {h:.3f}, 0 0))"
+        elif kind == 1:
+            r = rng.uniform(10, 30)
+            points = [[r * (1 + 0.1 * rng.random()) * __import__("math").cos(a / 12 * 6.283185307179586),
+                       r * (1 + 0.1 * rng.random()) * __import__("math").sin(a / 12 * 6.283185307179586)] for a in range(12)]
+            geometry = {"type": "Polygon", "coordinates": [points + [points[0]]]}
+        else:
+            x = 0.0
+            points = []
+            for _ in range(8):
+                x += rng.uniform(1, 5)
+                points.append([x, rng.uniform(-3, 3)])
+            geometry = points
+        lines.append({"id": f"P-{i:04d}", "geometry": geometry,
+                      "metadata": {"family": ["bracket", "gasket", "clip"][kind], "rev": i % 4}})
+    return lines
+
+
+def shapes_snapshot(server, name):
+    shapes, after = [], ""
+    while True:
+        status, page = server.call("GET", f"/v1/collections/{name}/shapes?limit=500&after={after}")
+        assert status == 200, page
+        shapes += page["shapes"]
+        if page["next_after"] is None:
+            return shapes
+        after = page["next_after"]
+
+
+def main():
+    directory = tempfile.mkdtemp(prefix="waymarkd-test-")
+    data = os.path.join(directory, "data")
+    try:
+        server = Server(data, "--max-body-bytes", "65536", "--read-timeout-ms", "1500", "--bulk-batch-size", "100")
+        run_api_checks(server, directory)
+        before = shapes_snapshot(server, "parts")
+        query = {"shape": "LINESTRING (0 0, 10 2, 20 -1, 30 0)", "k": 5, "mode": "exact"}
+        _, answer_before = server.call("POST", "/v1/collections/parts/nearest", query)
+        check(server.stop() == 0, "SIGTERM: exit status 0")
+        check(any("stopped" in line for line in server.log), "a shutdown log line")
+
+        # Restart: everything reads back the same, and the same query gives the same answer.
+        server = Server(data, "--max-concurrent-queries", "1", "--worker-threads", "1")
+        check(shapes_snapshot(server, "parts") == before, "restart: every shape and its metadata read back")
+        _, answer_after = server.call("POST", "/v1/collections/parts/nearest", query)
+        check([(r["id"], r["distance"]) for r in answer_after["results"]] ==
+              [(r["id"], r["distance"]) for r in answer_before["results"]], "restart: same answer")
+        run_overload_check(server)
+        check(server.stop() == 0, "second SIGTERM: exit status 0")
+
+        run_tls_check(directory)
+    finally:
+        shutil.rmtree(directory, ignore_errors=True)
+    if failures:
+        print(f"{len(failures)} checks failed")
+        sys.exit(1)
+    print(f"all {checks_run[0]} server checks passed")
+
+
+def run_api_checks(server, directory):
+    status, reply = server.call("GET", "/healthz")
+    check(status == 200 and reply == {"status": "up"}, f"healthz: {status} {reply}")
+
+    # Collections: create, conflicts, tokens, names, settings.
+    status, created = server.call("PUT", "/v1/collections/parts", {"landmarks": {"layout": "grid", "count": 64},
+                                                                    "frame": "unit"}, token=WRITE)
+    check(status == 201 and created["landmarks"]["count"] == 64, f"create: {status} {created}")
+    expect_error(server, "PUT", "/v1/collections/parts", {}, 409, "already_exists", label="create twice")
+    expect_error(server, "PUT", "/v1/collections/other", {}, 401, "unauthenticated", token=None, label="create, no token")
+    expect_error(server, "PUT", "/v1/collections/other", {}, 401, "unauthenticated", token="wrong-token-0123456789",
+                 label="create, wrong token")
+    expect_error(server, "PUT", "/v1/collections/other", {}, 403, "forbidden", token=READ, label="create, read token")
+    expect_error(server, "PUT", "/v1/collections/..", {}, 400, "invalid_argument", where="name", label="name ..")
+    expect_error(server, "PUT", "/v1/collections/a%2Fb", {}, 400, "invalid_argument", where="name", label="name a/b")
+    expect_error(server, "PUT", "/v1/collections/other", {"landmark": {}}, 400, "invalid_argument", where="landmark",
+                 label="unknown field")
+    expect_error(server, "PUT", "/v1/collections/other", {"landmarks": {"count": "many"}}, 400, "invalid_argument",
+                 where="landmarks.count", label="wrong type")
+    expect_error(server, "PUT", "/v1/collections/other", {"frame": "centered"}, 400, "invalid_argument",
+                 where="landmarks.domain", label="centered frame without domain")
+    status, listing = server.call("GET", "/v1/collections")
+    check(status == 200 and [c["name"] for c in listing["collections"]] == ["parts"], f"list: {listing}")
+
+    # One shape in each input format, read back unchanged.
+    formats = {
+        "wkt": "POLYGON ((0 0, 40 0, 40 6, 6 6, 6 30, 0 30, 0 0))",
+        "geojson": {"type": "LineString", "coordinates": [[0, 0], [5, 1], [9, -2]]},
+        "svg": "M 0 0 L 10 0 L 10 10 Z",
+        "arrays": [[0, 0], [3, 4], [6, 0]],
+    }
+    for name, geometry in formats.items():
+        status, reply = server.call("PUT", f"/v1/collections/parts/shapes/fmt-{name}",
+                                    {"geometry": geometry, "metadata": {"format": name}}, token=WRITE)
+        check(status == 200, f"put {name}: {status} {reply}")
+    status, reply = server.call("GET", "/v1/collections/parts/shapes/fmt-geojson")
+    check(status == 200 and reply["geometry"]["coordinates"] == [[0, 0], [5, 1], [9, -2]] and
+          reply["metadata"] == {"format": "geojson"}, f"get geojson: {reply}")
+    status, reply = server.call("GET", "/v1/collections/parts/shapes/fmt-svg")
+    check(status == 200 and reply["geometry"]["type"] == "Polygon", f"get svg: {reply}")
+
+    # Bulk NDJSON, sent with chunked transfer: good lines stored, each bad one named by line.
+    lines = [json.dumps(entry) for entry in catalogue(600)]
+    lines.insert(10, "{not json")
+    lines.insert(20, json.dumps({"id": "bad-nan", "geometry": "LINESTRING (0 0, 1 nan)"}))
+    lines.insert(30, json.dumps({"geometry": "LINESTRING (0 0, 1 1)"}))
+    lines.insert(40, json.dumps({"id": "bad-meta", "geometry": "LINESTRING (0 0, 1 1)", "metadata": [1]}))
+    lines.insert(50, "")
+    body = ("\n".join(lines) + "\n").encode()
+    connection = server.connection()
+    chunks = (body[i:i + 4096] for i in range(0, len(body), 4096))
+    connection.request("POST", "/v1/collections/parts/shapes", body=chunks, encode_chunked=True,
+                       headers={"Authorization": "Bearer " + WRITE, "Content-Type": "application/x-ndjson"})
+    response = connection.getresponse()
+    reply = json.loads(response.read())
+    connection.close()
+    check(response.status == 200 and reply["accepted"] == 600 and reply["rejected"] == 4,
+          f"bulk: {response.status} {reply}")
+    rejected_lines = sorted(r["line"] for r in reply.get("rejections", []))
+    check(rejected_lines == [11, 21, 31, 41], f"bulk: rejected lines {rejected_lines}")
+    by_line = {r["line"]: r for r in reply.get("rejections", [])}
+    check(by_line.get(21, {}).get("id") == "bad-nan" and "geometry" in by_line.get(21, {}).get("error", {}).get("where", ""),
+          f"bulk: the NaN line names its id and the geometry position: {by_line.get(21)}")
+    check(by_line.get(41, {}).get("error", {}).get("where") == "metadata", f"bulk: metadata line {by_line.get(41)}")
+    status, described = server.call("GET", "/v1/collections/parts")
+    check(described["stats"]["shapes"] == 604 and described["stats"]["last_write"], f"stats: {described['stats']}")
+
+    # Exact kNN equals a brute-force scan through /v1/distance over every stored shape.
+    stored = shapes_snapshot(server, "parts")
+    query_shape = "LINESTRING (0 0, 10 2, 20 -1, 30 0)"
+    for metric in ["hausdorff", "frechet"]:
+        status, answer = server.call("POST", "/v1/collections/parts/nearest",
+                                     {"shape": query_shape, "k": 5, "metric": metric, "mode": "exact"})
+        check(status == 200 and answer["certified"], f"exact {metric}: {status} {answer}")
+        distances = []
+        for shape in stored:
+            if metric == "frechet" and shape["geometry"]["type"].startswith("Multi"):
+                continue
+            s, d = server.call("POST", "/v1/distance", {"a": query_shape, "b": shape["geometry"], "metric": metric,
+                                                        "frame": "unit"})
+            if s == 200:
+                distances.append((d["distance"], shape["id"]))
+        distances.sort()
+        expected = [(round(d, 9), i) for d, i in distances[:5]]
+        got = [(round(r["distance"], 9), r["id"]) for r in answer["results"]]
+        check(got == expected, f"exact {metric} equals brute force: {got} vs {expected}")
+        check(answer["stats"]["exact_evaluations"] < len(stored), f"exact {metric}: the bounds pruned")
+
+    # By stored id (excludes itself), range, filter.
+    status, answer = server.call("POST", "/v1/collections/parts/nearest", {"id": "P-0003", "k": 3})
+    check(status == 200 and "P-0003" not in [r["id"] for r in answer["results"]] and len(answer["results"]) == 3,
+          f"by id: {answer}")
+    status, answer = server.call("POST", "/v1/collections/parts/within", {"shape": query_shape, "radius": 0.05})
+    check(status == 200 and answer["certified"] and all(r["distance"] <= 0.05 for r in answer["results"]),
+          f"within: {answer}")
+    status, answer = server.call("POST", "/v1/collections/parts/nearest",
+                                 {"shape": query_shape, "k": 5, "filter": {"family": "gasket"}, "mode": "exact"})
+    check(status == 200 and answer["results"] and all(r["metadata"]["family"] == "gasket" for r in answer["results"]),
+          f"filter: {answer}")
+    status, distance = server.call("POST", "/v1/distance", {"a": "LINESTRING (0 0, 1 0)", "b": "LINESTRING (0 1, 1 1)"})
+    check(status == 200 and abs(distance["distance"] - 1) < 1e-12 and abs(distance["to"][1] - 1) < 1e-12,
+          f"distance with witness: {distance}")
+
+    # Bad requests: exact status and code, and the stored data unchanged afterwards.
+    before = shapes_snapshot(server, "parts")
+    nearest = "/v1/collections/parts/nearest"
+    expect_error(server, "POST", nearest, None, 400, "invalid_argument", raw='{"shape": "LINESTRING (0 0, 1 1)",',
+                 where="line 1, column", label="malformed JSON")
+    expect_error(server, "POST", nearest, {"shape": "LINESTRING (0 0, 1 1)", "k": "ten"}, 400, "invalid_argument",
+                 where="k", label="k of the wrong type")
+    expect_error(server, "POST", nearest, {"shape": "LINESTRING (0 0, 1 1)", "metric": "manhattan"}, 400,
+                 "invalid_argument", where="metric", label="unsupported metric")
+    expect_error(server, "POST", nearest, {"shape": "MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))", "metric": "frechet"},
+                 422, "not_applicable", label="Fréchet on two strokes")
+    expect_error(server, "POST", nearest, {"shape": "LINESTRING (0 0, 1 1)", "k": 0}, 400, "invalid_argument",
+                 where="k", label="k = 0")
+    expect_error(server, "POST", nearest, {"shape": "LINESTRING (0 0, 1 1)", "k": 100000}, 400, "invalid_argument",
+                 where="k", label="k over max_k")
+    expect_error(server, "POST", nearest, {"shape": "LINESTRING (0 0 1, 1 1)"}, 400, "invalid_argument",
+                 where="shape: line 1", label="bad WKT")
+    expect_error(server, "POST", "/v1/collections/nothing/nearest", {"shape": "LINESTRING (0 0, 1 1)"}, 404,
+                 "not_found", label="unknown collection")
+    expect_error(server, "GET", "/v1/collections/parts/shapes/no-such-shape", None, 404, "not_found", label="unknown shape")
+    expect_error(server, "GET", "/v1/nowhere", None, 404, "not_found", label="unknown route")
+    expect_error(server, "PATCH", "/v1/collections/parts", {}, 405, "method_not_allowed", label="PATCH")
+    expect_error(server, "PUT", "/v1/collections/parts/shapes/x", {"geometry": "LINESTRING (0 0, 1 1)"}, 401,
+                 "unauthenticated", token=None, label="put shape without a token")
+    expect_error(server, "DELETE", "/v1/collections/parts", None, 403, "forbidden", token=READ,
+                 label="drop with a read token")
+    expect_error(server, "PUT", "/v1/collections/parts/shapes/big", None, 413, "too_large",
+                 raw=json.dumps({"geometry": [[i, i % 7] for i in range(10000)]}), label="oversized body")
+    expect_error(server, "PUT", "/v1/collections/parts/shapes/x", {"geometry": "LINESTRING (0 0, 1 1)", "metadata": 3},
+                 400, "invalid_argument", where="metadata", label="metadata not an object")
+    expect_error(server, "PUT", "/v1/collections/parts/shapes/x", {"geometry": {"type": "Circle"}}, 400,
+                 "invalid_argument", where="geometry", label="unknown GeoJSON type")
+    check(shapes_snapshot(server, "parts") == before, "bad requests left the stored data unchanged")
+
+    # Upsert and delete.
+    status, _ = server.call("PUT", "/v1/collections/parts/shapes/P-0001", {"geometry": "LINESTRING (0 0, 5 5)",
+                                                                         "metadata": {"rev": 9}}, token=WRITE)
+    status, reply = server.call("GET", "/v1/collections/parts/shapes/P-0001")
+    check(reply["metadata"] == {"rev": 9} and reply["geometry"]["type"] == "LineString", f"upsert: {reply}")
+    status, reply = server.call("DELETE", "/v1/collections/parts/shapes/P-0002", token=WRITE)
+    check(status == 200, f"delete: {status} {reply}")
+    expect_error(server, "DELETE", "/v1/collections/parts/shapes/P-0002", None, 404, "not_found", label="delete twice")
+
+    # Keep-alive: several requests on one connection.
+    connection = server.connection()
+    for _ in range(3):
+        status, _ = server.call("GET", "/healthz", connection=connection)
+        check(status == 200, "keep-alive request")
+    connection.close()
+
+    # A slow-drip request is cut off by read_timeout_ms (1.5 s here).
+    sock = socket.create_connection(("127.0.0.1", server.port))
+    sock.sendall(b"POST /v1/collections/parts/nearest HTTP/1.1\r\nHost: x\r\nContent-Length: 100\r\n\r\n{")
+    sock.settimeout(10)
+    started = time.time()
+    try:
+        answer = sock.recv(4096)
+    except socket.timeout:
+        answer = None
+    check(answer is not None and time.time() - started < 8 and (answer == b"" or b"408" in answer.split(b"\r\n")[0]),
+          f"slow drip cut off: {answer!r}")
+    sock.close()
+
+    # Metrics in the Prometheus text format.
+    status, text = server.call("GET", "/metrics")
+    check(status == 200 and 'waymark_http_requests_total{method="POST",route="/v1/collections/{name}/nearest",status="200"}'
+          in text and 'waymark_collection_shapes{collection="parts"} 603' in text and
+          'waymark_ingest_shapes_total{outcome="accepted"} 600' in text, "metrics:\n" + text[:2000])
+
+    # A second collection can be created and dropped.
+    status, _ = server.call("PUT", "/v1/collections/scratch", {"landmarks": {"count": 16, "layout": "random"}}, token=WRITE)
+    check(status == 201, "create scratch")
+    status, _ = server.call("DELETE", "/v1/collections/scratch", token=WRITE)
+    check(status == 200, "drop scratch")
+    expect_error(server, "GET", "/v1/collections/scratch", None, 404, "not_found", label="dropped collection")
+
+
+def run_overload_check(server):
+    # max_concurrent_queries = 1, one worker: concurrent slow queries get 429, none fail otherwise.
+    body = {"shape": "LINESTRING (0 0, 10 2, 20 -1, 30 0)", "k": 1000, "metric": "sketch", "mode": "exact"}
+
+    def one(_):
+        return server.call("POST", "/v1/collections/parts/nearest", body)
+
+    with concurrent.futures.ThreadPoolExecutor(16) as pool:
+        results = list(pool.map(one, range(64)))
+    statuses = [status for status, _ in results]
+    check(set(statuses) <= {200, 429} and 429 in statuses and 200 in statuses, f"overload: statuses {sorted(set(statuses))}")
+    overloaded = [reply for status, reply in results if status == 429]
+    check(all(error_code(reply) == "overloaded" for reply in overloaded), "overload: code overloaded")
+
+
+def run_tls_check(directory):
+    certificate, key = os.path.join(directory, "cert.pem"), os.path.join(directory, "key.pem")
+    made = subprocess.run(["openssl", "req", "-x509", "-newkey", "rsa:2048", "-nodes", "-keyout", key, "-out", certificate,
+                           "-days", "1", "-subj", "/CN=127.0.0.1"], capture_output=True)
+    if made.returncode != 0:
+        check(False, "openssl could not make a test certificate: " + made.stderr.decode())
+        return
+    server = Server(os.path.join(directory, "tls-data"), "--tls-certificate-file", certificate,
+                    "--tls-private-key-file", key, tls=certificate)
+    status, reply = server.call("GET", "/healthz")
+    check(status == 200 and reply == {"status": "up"}, f"TLS healthz: {status} {reply}")
+    status, _ = server.call("PUT", "/v1/collections/secure", {}, token=WRITE)
+    check(status == 201, "TLS create")
+    check(server.stop() == 0, "TLS server stops cleanly")
+
+
+if __name__ == "__main__":
+    main()
