@@ -94,18 +94,17 @@ std::string Metrics::exposition(const std::vector<CollectionGauges>& collections
   out << "waymark_query_exact_evaluations_total " << exact_evaluations_ << '\n';
   header(out, "waymark_queries_waiting", "gauge", "Queries queued or running on the worker pool.");
   out << "waymark_queries_waiting " << queries_waiting_ << '\n';
-  header(out, "waymark_collection_shapes", "gauge", "Shapes stored, by collection.");
-  for (const CollectionGauges& c : collections) {
-    out << "waymark_collection_shapes{collection=\"" << label(c.name) << "\"} " << c.shapes << '\n';
-  }
-  header(out, "waymark_collection_index_bytes", "gauge", "Memory of the vector index and id maps, by collection.");
-  for (const CollectionGauges& c : collections) {
-    out << "waymark_collection_index_bytes{collection=\"" << label(c.name) << "\"} " << c.index_bytes << '\n';
-  }
-  header(out, "waymark_collection_store_bytes", "gauge", "Store files and memtables, by collection.");
-  for (const CollectionGauges& c : collections) {
-    out << "waymark_collection_store_bytes{collection=\"" << label(c.name) << "\"} " << c.store_bytes << '\n';
-  }
+  auto per_collection = [&](const char* name, const char* help, std::size_t CollectionGauges::*field) {
+    header(out, name, "gauge", help);
+    for (const CollectionGauges& c : collections) {
+      out << name << "{collection=\"" << label(c.name) << "\"} " << c.*field << '\n';
+    }
+  };
+  per_collection("waymark_collection_shapes", "Shapes stored, by collection.", &CollectionGauges::shapes);
+  per_collection("waymark_collection_index_bytes", "Memory of the vector index and id maps, by collection.",
+                 &CollectionGauges::index_bytes);
+  per_collection("waymark_collection_store_bytes", "Store files and memtables, by collection.",
+                 &CollectionGauges::store_bytes);
   return out.str();
 }
 
