@@ -82,18 +82,18 @@ std::string Metrics::exposition(const std::vector<CollectionGauges>& collections
   header(out, "waymark_ingest_shapes_total", "counter", "Shapes offered to bulk ingest, by outcome.");
   out << "waymark_ingest_shapes_total{outcome=\"accepted\"} " << ingest_accepted_ << '\n';
   out << "waymark_ingest_shapes_total{outcome=\"rejected\"} " << ingest_rejected_ << '\n';
-  header(out, "waymark_queries_total", "counter", "kNN and range queries answered.");
-  out << "waymark_queries_total " << queries_ << '\n';
-  header(out, "waymark_queries_certified_total", "counter", "Queries whose answer was certified exact or complete.");
-  out << "waymark_queries_certified_total " << queries_certified_ << '\n';
-  header(out, "waymark_query_candidates_total", "counter", "Candidates drawn from vector indexes.");
-  out << "waymark_query_candidates_total " << candidates_ << '\n';
-  header(out, "waymark_query_pruned_total", "counter", "Candidates ruled out by a lower bound or the decision procedure.");
-  out << "waymark_query_pruned_total " << pruned_ << '\n';
-  header(out, "waymark_query_exact_evaluations_total", "counter", "Exact distance computations.");
-  out << "waymark_query_exact_evaluations_total " << exact_evaluations_ << '\n';
-  header(out, "waymark_queries_waiting", "gauge", "Queries queued or running on the worker pool.");
-  out << "waymark_queries_waiting " << queries_waiting_ << '\n';
+  auto single = [&](const char* name, const char* type, const char* help, std::uint64_t value) {
+    header(out, name, type, help);
+    out << name << ' ' << value << '\n';
+  };
+  single("waymark_queries_total", "counter", "kNN and range queries answered.", queries_);
+  single("waymark_queries_certified_total", "counter", "Queries whose answer was certified exact or complete.",
+         queries_certified_);
+  single("waymark_query_candidates_total", "counter", "Candidates drawn from vector indexes.", candidates_);
+  single("waymark_query_pruned_total", "counter", "Candidates ruled out by a lower bound or the decision procedure.",
+         pruned_);
+  single("waymark_query_exact_evaluations_total", "counter", "Exact distance computations.", exact_evaluations_);
+  single("waymark_queries_waiting", "gauge", "Queries queued or running on the worker pool.", queries_waiting_);
   auto per_collection = [&](const char* name, const char* help, std::size_t CollectionGauges::*field) {
     header(out, name, "gauge", help);
     for (const CollectionGauges& c : collections) {

@@ -58,6 +58,14 @@ void require_same(const QueryAnswer& a, const QueryAnswer& b) {
   }
 }
 
+// A new 64-landmark collection holding `records` (one batch).
+std::unique_ptr<Collection> filled_collection(const TemporaryDirectory& directory, const std::vector<ShapeRecord>& records) {
+  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
+  REQUIRE(collection.is_ok());
+  REQUIRE((*collection)->upsert(records).is_ok());
+  return std::move(*collection);
+}
+
 }  // namespace
 
 TEST_CASE("ShapeCodecRoundTripsAndRejectsDamage") {
@@ -106,17 +114,15 @@ TEST_CASE("ExactModeMatchesFullScan") {
 
 TEST_CASE("FastModeRecallOnSyntheticShapes") {
   TemporaryDirectory directory;
-  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
-  REQUIRE(collection.is_ok());
   const std::vector<ShapeRecord> records = synthetic_records(2000, 7);
-  REQUIRE((*collection)->upsert(records).is_ok());
+  const std::unique_ptr<Collection> collection = filled_collection(directory, records);
   SeededRandom random(8);
   testing::RecallCount recall_count;
   for (int q = 0; q < 30; ++q) {
     const Shape query = records[random.below(records.size())].shape;
     QueryOptions options;
-    Result<QueryAnswer> fast = (*collection)->nearest(query, options);
-    Result<QueryAnswer> scan = (*collection)->nearest_by_full_scan(query, options);
+    Result<QueryAnswer> fast = collection->nearest(query, options);
+    Result<QueryAnswer> scan = collection->nearest_by_full_scan(query, options);
     REQUIRE((fast.is_ok() && scan.is_ok()));
     recall_count.add(*scan, *fast);
   }
@@ -224,29 +230,27 @@ std::vector<QueryHit> all_by_full_scan(const Collection& collection, const Shape
 
 TEST_CASE("RangeQueryReturnsExactlyTheShapesWithinTheRadius") {
   TemporaryDirectory directory;
-  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
-  REQUIRE(collection.is_ok());
   const std::vector<ShapeRecord> records = synthetic_records(1200, 21);
-  REQUIRE((*collection)->upsert(records).is_ok());
+  const std::unique_ptr<Collection> collection = filled_collection(directory, records);
   SeededRandom random(22);
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
     for (int q = 0; q < 6; ++q) {
       const Shape query = records[random.below(records.size())].shape;
-      const std::vector<QueryHit> everything = all_by_full_scan(**collection, query, metric);
+      const std::vector<QueryHit> everything = all_by_full_scan(*collection, query, metric);
       // A radius between two stored distances (the 5th to the 60th nearest), so the boundary
       // is never a tie.
       const std::size_t cut = 5 + random.below(55);
       RangeOptions options;
       options.metric = metric;
       options.radius = 0.5 * (everything[cut - 1].distance + everything[cut].distance);
-      Result<QueryAnswer> range = (*collection)->within(query, options);
+      Result<QueryAnswer> range = collection->within(query, options);
       REQUIRE(range.is_ok());
       INFO(metric_name(metric) << " query " << q << " radius " << options.radius);
       CHECK(range->certified);
       require_same(*range, QueryAnswer{std::vector<QueryHit>(everything.begin(), everything.begin() + cut), {}, true});
       CHECK(range->stats.candidates_fetched < records.size());  // the L∞ bound stopped the walk early
       options.max_results = 3;
-      Result<QueryAnswer> truncated = (*collection)->within(query, options);
+      Result<QueryAnswer> truncated = collection->within(query, options);
       REQUIRE(truncated.is_ok());
       CHECK(truncated->hits.size() == 3);
       CHECK_FALSE(truncated->certified);
@@ -254,30 +258,28 @@ TEST_CASE("RangeQueryReturnsExactlyTheShapesWithinTheRadius") {
   }
   RangeOptions sketch_range;
   sketch_range.metric = Metric::sketch;
-  CHECK((*collection)->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
+  CHECK(collection->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
   sketch_range.metric = Metric::hausdorff;
   sketch_range.radius = -1;
-  CHECK((*collection)->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
+  CHECK(collection->within(records[0].shape, sketch_range).status().code() == StatusCode::invalid_argument);
 }
 
 TEST_CASE("MetadataFilterMatchesAFilteredFullScan") {
   TemporaryDirectory directory;
-  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
-  REQUIRE(collection.is_ok());
   const std::vector<ShapeRecord> records = synthetic_records(900, 23);
-  REQUIRE((*collection)->upsert(records).is_ok());
+  const std::unique_ptr<Collection> collection = filled_collection(directory, records);
   SeededRandom random(24);
   for (int q = 0; q < 6; ++q) {
     const Shape query = records[random.below(records.size())].shape;
     const std::string group = "g" + std::to_string(q % 3);
     std::vector<QueryHit> expected;
-    for (QueryHit& hit : all_by_full_scan(**collection, query, Metric::hausdorff)) {
+    for (QueryHit& hit : all_by_full_scan(*collection, query, Metric::hausdorff)) {
       if (nlohmann::json::parse(hit.metadata).at("group") == group && expected.size() < 10) expected.push_back(hit);
     }
     QueryOptions options;
     options.exact = true;
     options.metadata_filter = "{\"group\": \"" + group + "\"}";
-    Result<QueryAnswer> filtered = (*collection)->nearest(query, options);
+    Result<QueryAnswer> filtered = collection->nearest(query, options);
     REQUIRE(filtered.is_ok());
     CHECK(filtered->certified);
     CHECK(filtered->stats.filtered_out > 0);
@@ -285,11 +287,11 @@ TEST_CASE("MetadataFilterMatchesAFilteredFullScan") {
   }
   QueryOptions bad;
   bad.metadata_filter = "[1, 2]";
-  Result<QueryAnswer> refused = (*collection)->nearest(records[0].shape, bad);
+  Result<QueryAnswer> refused = collection->nearest(records[0].shape, bad);
   CHECK(refused.status().code() == StatusCode::invalid_argument);
   CHECK(refused.status().where() == "metadata_filter");
   bad.metadata_filter = "{\"group\": \"no such group\"}";
-  Result<QueryAnswer> none = (*collection)->nearest(records[0].shape, bad);
+  Result<QueryAnswer> none = collection->nearest(records[0].shape, bad);
   REQUIRE(none.is_ok());
   CHECK(none->hits.empty());
 }
