@@ -16,29 +16,41 @@ namespace {
 using Json = nlohmann::json;
 
 constexpr const char* kManifestKey = "manifest";
-// 2: geometry stored as given (1 stored it framed; no such store was ever released).
-constexpr int kFormat = 2;
+// 3: sketches under their landmark generation, beside the records (2 kept the one sketch
+// inside the record; open() upgrades such a store in place).
+constexpr int kFormat = 3;
+constexpr int kUpgradableFormat = 2;
 constexpr const char* kShapePrefix = "s/";
+constexpr const char* kSketchPrefix = "v/";
 constexpr const char* kLastWriteKey = "last_write";  // u64 milliseconds since the Unix epoch
 
-Status from_rocksdb(const rocksdb::Status& status, const std::string& doing) {
-  if (status.ok()) return Status::ok();
-  const StatusCode code = status.IsCorruption() ? StatusCode::data_loss : StatusCode::io_error;
-  return Status(code, "store: " + doing + ": " + status.ToString());
-}
+void put_u64(std::string& out, std::uint64_t value) { out.append(reinterpret_cast<const char*>(&value), sizeof value); }
 
-std::string encode_record(std::int64_t label, const Shape& shape, std::span<const float> sketch,
-                          const std::string& metadata) {
+std::string encode_record(std::int64_t label, const Shape& shape, const std::string& metadata) {
   const std::string geometry = encode_shape(shape);
   std::string out;
-  auto put_u64 = [&](std::uint64_t v) { out.append(reinterpret_cast<const char*>(&v), sizeof v); };
-  put_u64(static_cast<std::uint64_t>(label));
-  put_u64(geometry.size());
+  put_u64(out, static_cast<std::uint64_t>(label));
+  put_u64(out, geometry.size());
   out += geometry;
-  put_u64(sketch.size());
-  out.append(reinterpret_cast<const char*>(sketch.data()), sketch.size() * sizeof(float));
+  put_u64(out, 0);  // no embedded sketch (format 2 kept one here)
   out += metadata;
   return out;
+}
+
+struct DecodedSketch {
+  std::int64_t label;
+  std::vector<float> values;
+};
+
+Result<DecodedSketch> decode_sketch(const std::string& id, std::string_view bytes, std::size_t dimension) {
+  if (bytes.size() != 8 + dimension * sizeof(float)) {
+    return Status(StatusCode::data_loss, "store: sketch of '" + id + "' has " + std::to_string(bytes.size()) +
+                                             " bytes, expected " + std::to_string(8 + dimension * sizeof(float)));
+  }
+  DecodedSketch sketch{0, std::vector<float>(dimension)};
+  std::memcpy(&sketch.label, bytes.data(), 8);
+  std::memcpy(sketch.values.data(), bytes.data() + 8, dimension * sizeof(float));
+  return sketch;
 }
 
 Json manifest_json(const CollectionSettings& settings) {
@@ -52,13 +64,21 @@ Json manifest_json(const CollectionSettings& settings) {
           {"default_metric", metric_name(settings.default_metric)}};
 }
 
-Result<CollectionSettings> parse_manifest(const std::string& text) {
+struct Manifest {
   CollectionSettings settings;
+  int format = kFormat;
+};
+
+Result<Manifest> parse_manifest(const std::string& text) {
+  Manifest manifest;
+  CollectionSettings& settings = manifest.settings;
   try {
     const Json json = Json::parse(text);
-    if (json.at("format").get<int>() != kFormat) {
+    manifest.format = json.at("format").get<int>();
+    if (manifest.format != kFormat && manifest.format != kUpgradableFormat) {
       return Status(StatusCode::failed_precondition, "store: format " + json.at("format").dump() +
-                                                         " is not supported (this build reads format " +
+                                                         " is not supported (this build reads formats " +
+                                                         std::to_string(kUpgradableFormat) + " and " +
                                                          std::to_string(kFormat) + ")");
     }
     Result<Frame> frame = parse_frame(json.at("frame").get<std::string>());
@@ -80,7 +100,7 @@ Result<CollectionSettings> parse_manifest(const std::string& text) {
   } catch (const std::exception& error) {
     return Status(StatusCode::data_loss, std::string("store: manifest is damaged: ") + error.what());
   }
-  return settings;
+  return manifest;
 }
 
 Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory, bool create) {
@@ -100,18 +120,44 @@ std::string now_as_record() {
   return std::string(reinterpret_cast<const char*>(&ms), sizeof ms);
 }
 
-rocksdb::WriteOptions durable() {
+rocksdb::WriteOptions durable() { return durable_write(); }
+
+}  // namespace
+
+rocksdb::WriteOptions durable_write() {
   rocksdb::WriteOptions options;
   options.sync = true;  // acknowledged only once on disk
   return options;
 }
 
-}  // namespace
+void put_manifest(rocksdb::WriteBatch& batch, const CollectionSettings& settings) {
+  batch.Put(kManifestKey, manifest_json(settings).dump());
+}
+
+Status from_rocksdb(const rocksdb::Status& status, const std::string& doing) {
+  if (status.ok()) return Status::ok();
+  const StatusCode code = status.IsCorruption() ? StatusCode::data_loss : StatusCode::io_error;
+  return Status(code, "store: " + doing + ": " + status.ToString());
+}
 
 std::string shape_key(const std::string& id) { return kShapePrefix + id; }
 
-Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, std::size_t dimension,
-                                  const ShapeLimits& limits) {
+std::string sketch_prefix(std::uint64_t generation) {
+  char hex[17];
+  std::snprintf(hex, sizeof hex, "%016llx", static_cast<unsigned long long>(generation));
+  return std::string(kSketchPrefix) + hex + "/";
+}
+
+std::string sketch_key(std::uint64_t generation, const std::string& id) { return sketch_prefix(generation) + id; }
+
+std::string encode_sketch(std::int64_t label, std::span<const float> sketch) {
+  std::string out;
+  put_u64(out, static_cast<std::uint64_t>(label));
+  out.append(reinterpret_cast<const char*>(sketch.data()), sketch.size() * sizeof(float));
+  return out;
+}
+
+Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, const ShapeLimits& limits) {
   auto damaged = [&](const std::string& what) {
     return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: " + what);
   };
@@ -126,15 +172,13 @@ Result<StoredShape> decode_record(const std::string& id, std::string_view bytes,
   if (bytes.size() - offset < 8) return damaged("truncated before the sketch");
   std::memcpy(&sketch_size, bytes.data() + offset, 8);
   offset += 8;
-  if (sketch_size != dimension || (bytes.size() - offset) / sizeof(float) < sketch_size) {
-    return damaged("sketch length does not match the landmark count");
-  }
+  // A format-2 record carries its sketch here; format 3 writes none. Either way it is skipped:
+  // sketches live under their generation's keys.
+  if ((bytes.size() - offset) / sizeof(float) < sketch_size) return damaged("embedded sketch exceeds the record");
   StoredShape stored;
   stored.id = id;
   stored.label = static_cast<std::int64_t>(label);
   stored.shape = std::move(*shape);
-  stored.sketch.resize(sketch_size);
-  std::memcpy(stored.sketch.data(), bytes.data() + offset, sketch_size * sizeof(float));
   stored.metadata = std::string(bytes.substr(offset + sketch_size * sizeof(float)));
   return stored;
 }
@@ -144,19 +188,29 @@ Result<StoredShape> Collection::State::load_as_given(const std::string& id) cons
   const rocksdb::Status status = database->Get(rocksdb::ReadOptions(), shape_key(id), &value);
   if (status.IsNotFound()) return Status(StatusCode::not_found, "no shape with id '" + id + "'");
   if (Status s = from_rocksdb(status, "reading '" + id + "'"); !s.is_ok()) return s;
-  return decode_record(id, value, sketcher->dimension(), settings.limits);
+  return decode_record(id, value, settings.limits);
 }
 
-Result<StoredShape> Collection::State::load(const std::string& id) const {
+Result<StoredShape> Collection::State::load(const std::string& id, const Generation& generation,
+                                            std::optional<std::int64_t> label) const {
   Result<StoredShape> stored = load_as_given(id);
-  if (stored) stored->shape = apply_frame(stored->shape, settings.frame);
+  if (!stored) return stored;
+  if (label && stored->label != *label) return Status(StatusCode::not_found, "shape '" + id + "' was replaced");
+  // The index holds the sketch of exactly this record (same label), in this generation.
+  Result<std::vector<float>> raw = generation.index.vector_of(stored->label);
+  if (!raw) return raw.status();
+  stored->raw = std::move(*raw);
+  stored->shape = apply_frame(stored->shape, settings.frame);
   return stored;
 }
 
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
 Collection::~Collection() = default;
 
-const CollectionSettings& Collection::settings() const { return state_->settings; }
+CollectionSettings Collection::settings() const {
+  std::shared_lock lock(state_->labels_mutex);
+  return state_->settings;
+}
 
 std::size_t Collection::size() const {
   std::shared_lock lock(state_->labels_mutex);
@@ -169,9 +223,43 @@ std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings,
   auto state = std::make_unique<Collection::State>();
   state->settings = settings;
   state->database = std::move(db);
-  state->sketcher = std::make_unique<Sketcher>(settings.landmarks);
-  state->index = std::make_unique<VectorIndex>(settings.landmarks.size(), VectorMetric::linf);
+  state->current = std::make_shared<Generation>(settings.landmarks);
   return state;
+}
+
+// Format 2 → 3: each record's embedded sketch is copied to its generation's key, then the
+// manifest says format 3. A crash part-way leaves format 2 and the copy is simply redone.
+Status upgrade_from_format_2(rocksdb::DB& database, const CollectionSettings& settings) {
+  const std::uint64_t generation = settings.landmarks.generation;
+  const std::size_t dimension = settings.landmarks.size();
+  rocksdb::WriteBatch batch;
+  std::unique_ptr<rocksdb::Iterator> it(database.NewIterator(rocksdb::ReadOptions()));
+  for (it->Seek(kShapePrefix); it->Valid() && it->key().starts_with(kShapePrefix); it->Next()) {
+    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
+    const std::string_view bytes = it->value().ToStringView();
+    std::uint64_t label = 0, geometry_size = 0, sketch_size = 0;
+    if (bytes.size() < 16) return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: too short");
+    std::memcpy(&label, bytes.data(), 8);
+    std::memcpy(&geometry_size, bytes.data() + 8, 8);
+    const std::size_t offset = 16 + geometry_size;
+    if (geometry_size > bytes.size() - 16 || bytes.size() - offset < 8) {
+      return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: truncated");
+    }
+    std::memcpy(&sketch_size, bytes.data() + offset, 8);
+    if (sketch_size != dimension || (bytes.size() - offset - 8) / sizeof(float) < dimension) {
+      return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: sketch length");
+    }
+    std::vector<float> sketch(dimension);
+    std::memcpy(sketch.data(), bytes.data() + offset + 8, dimension * sizeof(float));
+    batch.Put(sketch_key(generation, id), encode_sketch(static_cast<std::int64_t>(label), sketch));
+    if (batch.Count() >= 1000) {
+      if (Status s = from_rocksdb(database.Write(durable(), &batch), "upgrading"); !s.is_ok()) return s;
+      batch.Clear();
+    }
+  }
+  if (Status s = from_rocksdb(it->status(), "upgrading"); !s.is_ok()) return s;
+  put_manifest(batch, settings);
+  return from_rocksdb(database.Write(durable(), &batch), "upgrading");
 }
 
 }  // namespace
@@ -217,28 +305,75 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
       !s.is_ok()) {
     return s;
   }
-  Result<CollectionSettings> settings = parse_manifest(manifest);
-  if (!settings) return settings.status();
-  auto state = new_state(*settings, std::move(*db));
+  Result<Manifest> parsed = parse_manifest(manifest);
+  if (!parsed) return parsed.status();
+  const CollectionSettings& settings = parsed->settings;
+  if (parsed->format == kUpgradableFormat) {
+    if (Status s = upgrade_from_format_2(**db, settings); !s.is_ok()) return s;
+  }
+  auto state = new_state(settings, std::move(*db));
+  Generation& generation = *state->current;
+  const std::uint64_t number = generation.number();
+  const std::size_t dimension = generation.sketcher.dimension();
 
-  // Rebuild the derived state from the records (a vector index snapshot is future work).
+  // Sketches of other generations are leftovers of a refit that crashed before (or right
+  // after) its switch: remove them. Keys of generation g sort between prefix(g) and prefix(g+1).
+  rocksdb::WriteBatch cleanup;
+  cleanup.DeleteRange(kSketchPrefix, sketch_prefix(number));
+  cleanup.DeleteRange(sketch_prefix(number + 1), "v0");  // '0' follows '/' in byte order
+  if (Status s = from_rocksdb(state->database->Write(rocksdb::WriteOptions(), &cleanup), "removing stale sketches");
+      !s.is_ok()) {
+    return s;
+  }
+
+  // Rebuild the derived state: records and this generation's sketches, both in id order.
   std::vector<std::int64_t> labels;
   std::vector<float> vectors;
-  std::unique_ptr<rocksdb::Iterator> it(state->database->NewIterator(rocksdb::ReadOptions()));
-  for (it->Seek(kShapePrefix); it->Valid() && it->key().starts_with(kShapePrefix); it->Next()) {
-    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
-    Result<StoredShape> stored = decode_record(id, it->value().ToStringView(), state->sketcher->dimension(),
-                                               state->settings.limits);
-    if (!stored) return stored.status();
+  // One snapshot for both iterators, so they see the same store.
+  const rocksdb::Snapshot* snapshot = state->database->GetSnapshot();
+  rocksdb::ReadOptions at_snapshot;
+  at_snapshot.snapshot = snapshot;
+  std::unique_ptr<rocksdb::Iterator> records(state->database->NewIterator(at_snapshot));
+  std::unique_ptr<rocksdb::Iterator> sketches(state->database->NewIterator(at_snapshot));
+  const std::string prefix = sketch_prefix(number);
+  sketches->Seek(prefix);
+  Status failure;
+  for (records->Seek(kShapePrefix); records->Valid() && records->key().starts_with(kShapePrefix); records->Next()) {
+    const std::string id = records->key().ToString().substr(std::strlen(kShapePrefix));
+    Result<StoredShape> stored = decode_record(id, records->value().ToStringView(), settings.limits);
+    if (!stored) {
+      failure = stored.status();
+      break;
+    }
+    const std::string wanted = prefix + id;
+    if (!sketches->Valid() || sketches->key() != wanted) {
+      failure = Status(StatusCode::data_loss, "store: shape '" + id + "' has no sketch of landmark generation " +
+                                                  std::to_string(number));
+      break;
+    }
+    Result<DecodedSketch> sketch = decode_sketch(id, sketches->value().ToStringView(), dimension);
+    if (sketch && sketch->label != stored->label) {
+      sketch = Status(StatusCode::data_loss, "store: sketch of '" + id + "' belongs to another version of the shape");
+    }
+    if (!sketch) {
+      failure = sketch.status();
+      break;
+    }
+    sketches->Next();
     state->label_of_id[id] = stored->label;
     state->id_of_label[stored->label] = id;
     state->next_label = std::max(state->next_label, stored->label + 1);
     labels.push_back(stored->label);
-    const std::vector<float> raw = state->sketcher->unweighted(stored->sketch);
+    const std::vector<float> raw = generation.sketcher.unweighted(sketch->values);
     vectors.insert(vectors.end(), raw.begin(), raw.end());
   }
-  if (Status s = from_rocksdb(it->status(), "scanning records"); !s.is_ok()) return s;
-  if (Status s = state->index->add(labels, vectors); !s.is_ok()) return s;
+  if (failure.is_ok()) failure = from_rocksdb(records->status(), "scanning records");
+  if (failure.is_ok()) failure = from_rocksdb(sketches->status(), "scanning sketches");
+  records.reset();
+  sketches.reset();
+  state->database->ReleaseSnapshot(snapshot);
+  if (!failure.is_ok()) return failure;
+  if (Status s = generation.index.add(labels, vectors); !s.is_ok()) return s;
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 
@@ -259,7 +394,6 @@ Status Collection::check(const ShapeRecord& record) const {
 
 Status Collection::upsert(std::span<const ShapeRecord> batch) {
   State& state = *state_;
-  const std::size_t dimension = state.sketcher->dimension();
   // Check everything before writing anything.
   std::vector<Shape> framed;
   framed.reserve(batch.size());
@@ -280,7 +414,10 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   }
 
   std::lock_guard write_lock(state.write_mutex);
-  std::vector<std::int64_t> old_labels, new_labels;
+  // Under the write lock neither generation can change: a refit switches under it too.
+  Generation& current = *state.current;
+  Generation* pending = state.pending.get();
+  std::vector<std::int64_t> old_labels, new_labels, pending_labels;
   std::int64_t next_label;
   {
     std::shared_lock lock(state.labels_mutex);
@@ -292,22 +429,37 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     }
   }
   rocksdb::WriteBatch write;
-  std::vector<float> sketch(dimension), index_vectors;
+  const std::size_t dimension = current.sketcher.dimension();
+  std::vector<float> sketch(dimension), index_vectors, pending_vectors;
   index_vectors.reserve(winners.size() * dimension);
   for (std::size_t i : winners) {
+    const std::string key = shape_key(batch[i].id);
     new_labels.push_back(next_label++);
-    state.sketcher->sketch(framed[i], sketch);
-    write.Put(shape_key(batch[i].id), encode_record(new_labels.back(), batch[i].shape, sketch, batch[i].metadata));
-    const std::vector<float> raw = state.sketcher->unweighted(sketch);
+    write.Put(key, encode_record(new_labels.back(), batch[i].shape, batch[i].metadata));
+    current.sketcher.sketch(framed[i], sketch);
+    write.Put(sketch_key(current.number(), batch[i].id), encode_sketch(new_labels.back(), sketch));
+    const std::vector<float> raw = current.sketcher.unweighted(sketch);
     index_vectors.insert(index_vectors.end(), raw.begin(), raw.end());
+    // A running refit has passed this id already: sketch it into the next generation too.
+    if (pending && key <= state.pending_covered_up_to) {
+      std::vector<float> next_sketch = pending->sketcher.sketch(framed[i]);
+      write.Put(sketch_key(pending->number(), batch[i].id), encode_sketch(new_labels.back(), next_sketch));
+      const std::vector<float> next_raw = pending->sketcher.unweighted(next_sketch);
+      pending_vectors.insert(pending_vectors.end(), next_raw.begin(), next_raw.end());
+      pending_labels.push_back(new_labels.back());
+    }
   }
   write.Put(kLastWriteKey, now_as_record());
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "writing a batch"); !s.is_ok()) return s;
 
   // Durable: now make it searchable.
   std::unique_lock lock(state.labels_mutex);
-  if (Status s = state.index->remove(old_labels); !s.is_ok()) return s;
-  if (Status s = state.index->add(new_labels, index_vectors); !s.is_ok()) return s;
+  if (Status s = current.index.remove(old_labels); !s.is_ok()) return s;
+  if (Status s = current.index.add(new_labels, index_vectors); !s.is_ok()) return s;
+  if (pending) {
+    if (Status s = pending->index.remove(old_labels); !s.is_ok()) return s;
+    if (Status s = pending->index.add(pending_labels, pending_vectors); !s.is_ok()) return s;
+  }
   for (std::int64_t old : old_labels) state.id_of_label.erase(old);
   for (std::size_t w = 0; w < winners.size(); ++w) {
     const std::string& id = batch[winners[w]].id;
@@ -321,6 +473,8 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
 Status Collection::remove(std::span<const std::string> ids) {
   State& state = *state_;
   std::lock_guard write_lock(state.write_mutex);
+  Generation& current = *state.current;
+  Generation* pending = state.pending.get();
   rocksdb::WriteBatch write;
   std::vector<std::int64_t> labels;
   std::vector<std::string> removed;
@@ -330,6 +484,8 @@ Status Collection::remove(std::span<const std::string> ids) {
       auto found = state.label_of_id.find(id);
       if (found == state.label_of_id.end()) continue;
       write.Delete(shape_key(id));
+      write.Delete(sketch_key(current.number(), id));
+      if (pending) write.Delete(sketch_key(pending->number(), id));
       labels.push_back(found->second);
       removed.push_back(id);
     }
@@ -338,7 +494,10 @@ Status Collection::remove(std::span<const std::string> ids) {
   write.Put(kLastWriteKey, now_as_record());
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "deleting"); !s.is_ok()) return s;
   std::unique_lock lock(state.labels_mutex);
-  if (Status s = state.index->remove(labels); !s.is_ok()) return s;
+  if (Status s = current.index.remove(labels); !s.is_ok()) return s;
+  if (pending) {
+    if (Status s = pending->index.remove(labels); !s.is_ok()) return s;
+  }
   for (std::size_t i = 0; i < labels.size(); ++i) {
     state.id_of_label.erase(labels[i]);
     state.label_of_id.erase(removed[i]);
@@ -354,8 +513,7 @@ Result<std::vector<ShapeRecord>> Collection::list(const std::string& after, std:
   if (it->Valid() && !after.empty() && it->key() == start) it->Next();
   for (; it->Valid() && it->key().starts_with(kShapePrefix) && page.size() < limit; it->Next()) {
     const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
-    Result<StoredShape> stored =
-        decode_record(id, it->value().ToStringView(), state_->sketcher->dimension(), state_->settings.limits);
+    Result<StoredShape> stored = decode_record(id, it->value().ToStringView(), state_->settings.limits);
     if (!stored) return stored.status();
     page.push_back({id, std::move(stored->shape), std::move(stored->metadata)});
   }
@@ -371,7 +529,7 @@ CollectionStatistics Collection::statistics() const {
     std::size_t id_bytes = 0;
     for (const auto& [id, label] : state_->label_of_id) id_bytes += id.size();
     // Two hash maps (id ↔ label): key, value and about two pointers of node and bucket each.
-    statistics.index_bytes = state_->index->memory_bytes() + 2 * id_bytes +
+    statistics.index_bytes = state_->current->index.memory_bytes() + 2 * id_bytes +
                              statistics.shape_count * 2 * (sizeof(std::string) + sizeof(std::int64_t) + 4 * sizeof(void*));
   }
   std::uint64_t sst = 0, memtables = 0;

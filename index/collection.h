@@ -1,14 +1,18 @@
 // A durable shape collection and its query engine.
 //
 // A collection lives in its own directory: a RocksDB database holding a manifest (frame,
-// landmark set, limits) and one record per shape (its caller id, geometry as given, sketch
-// vector of the framed geometry, index label, metadata JSON); layout in index/STORE_FORMAT.md. The
-// vector index is derived: open() rebuilds it from the stored sketches.
+// landmark set, limits), one record per shape (its caller id, geometry as given, index label,
+// metadata JSON) and each shape's sketch vector in the current landmark generation; layout in
+// index/STORE_FORMAT.md. The vector index is derived: open() rebuilds it from the stored
+// sketches.
 //
 // Writes: upsert() and remove() apply a whole batch or nothing, and return only after the
 // batch is synced to disk (RocksDB WriteBatch with sync). Writes are serialised; queries run
 // concurrently with each other and with writes, and a write becomes visible to queries once
 // upsert() returns.
+//
+// Landmark generations: the sketches of every shape are kept per landmark generation; a
+// refit() builds the next generation beside the current one and switches atomically.
 //
 // Queries (nearest): candidates come from the exhaustive L∞ index over raw landmark distances,
 // in order of that L∞ value, which is a lower bound on the exact distance; each is checked
@@ -23,6 +27,7 @@
 // closer shapes.
 #pragma once
 
+#include <atomic>
 #include <cstdint>
 #include <memory>
 #include <span>
@@ -98,6 +103,24 @@ struct QueryAnswer {
   bool certified = false;
 };
 
+// Landmark refit: new landmarks fitted by sensitivity sampling (sketch/landmarks/fitting.h)
+// on a seeded sample of stored shapes, over the current landmarks' domain.
+struct RefitOptions {
+  std::size_t landmark_count = 0;  // 0: as many as the current generation has
+  std::size_t sample_size = 1000;  // stored shapes the fit looks at (all, when fewer are stored)
+  std::size_t candidate_count = 1024;
+  std::size_t pair_count = 2000;
+  std::uint64_t seed = 1;
+  std::size_t batch_size = 500;  // shapes re-sketched per step (each step holds the write lock)
+};
+
+// Written by a running refit, readable from any thread.
+struct RefitProgress {
+  std::atomic<std::size_t> shapes_done{0};
+  std::atomic<std::size_t> shapes_total{0};  // stored shapes when re-sketching began
+  std::atomic<bool> cancel{false};           // set to abandon the refit; the old generation stays
+};
+
 struct CollectionStatistics {
   std::size_t shape_count = 0;
   std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
@@ -115,7 +138,8 @@ class Collection {
   static Result<std::unique_ptr<Collection>> open(const std::string& directory);
   ~Collection();
 
-  const CollectionSettings& settings() const;
+  // A copy: a refit changes settings().landmarks (a new generation).
+  CollectionSettings settings() const;
   std::size_t size() const;
   CollectionStatistics statistics() const;
 
@@ -142,6 +166,16 @@ class Collection {
   Result<QueryAnswer> within(const Shape& query, const RangeOptions& options) const;
   // The baseline: exact distance to every stored shape. O(n) exact evaluations.
   Result<QueryAnswer> nearest_by_full_scan(const Shape& query, const QueryOptions& options) const;
+
+  // Fits a new landmark generation and re-sketches every stored shape into it, then switches
+  // to it in one durable write; returns the new generation number. Blocks for O(n) sketches:
+  // run it on a thread of its own. Meanwhile reads, queries and writes go on (each query uses
+  // one generation from start to end; writes are held for at most one batch step). A crash or
+  // an error before the switch leaves the old generation serving and its leftovers are removed
+  // by the next open(). Errors: failed_precondition when another refit of this collection is
+  // running, when progress.cancel was set (nothing changes), or with fewer than two stored
+  // shapes; the fitting's own errors; io_error from the store.
+  Result<std::uint64_t> refit(const RefitOptions& options, RefitProgress& progress);
 
   // Opaque to callers; defined in index/collection_state.h for the index module's own files.
   struct State;

@@ -1,11 +1,16 @@
-// Internal to index/: what a Collection holds, shared by collection.cc (storage) and
-// query_planner.cc (queries).
+// Internal to index/: what a Collection holds, shared by collection.cc (storage), refit.cc
+// (landmark generations) and query_planner.cc (queries).
 #pragma once
 
 #include <rocksdb/db.h>
+#include <rocksdb/write_batch.h>
 
+#include <atomic>
 #include <memory>
+#include <mutex>
+#include <optional>
 #include <shared_mutex>
+#include <span>
 #include <string>
 #include <unordered_map>
 #include <vector>
@@ -16,34 +21,68 @@
 
 namespace waymark {
 
-// One stored shape as decoded from its record.
+// One landmark generation: the landmarks, the sketcher built on them and the vector index of
+// every stored shape's raw landmark distances (sketcher.unweighted(sketch), under L∞). A query
+// takes one shared_ptr<Generation> at its start and uses only it, so it never compares
+// sketches of two generations, even while a refit switches generations under it.
+struct Generation {
+  explicit Generation(const LandmarkSet& landmarks)
+      : sketcher(landmarks), index(landmarks.size(), VectorMetric::linf) {}
+  std::uint64_t number() const { return sketcher.landmarks().generation; }
+  Sketcher sketcher;
+  VectorIndex index;  // internally locked: add/remove while queries search
+};
+
+// One stored shape as decoded from its record and its sketch of one generation.
 struct StoredShape {
   std::string id;
   std::int64_t label = 0;
   Shape shape;  // as given by decode_record; in the collection's frame from State::load
-  std::vector<float> sketch;
+  // Unweighted landmark distances in one generation (Sketcher::unweighted of the sketch), as the
+  // vector index holds them; empty from decode_record, filled by State::load.
+  std::vector<float> raw;
   std::string metadata;
 };
 
 struct Collection::State {
-  CollectionSettings settings;
+  CollectionSettings settings;  // settings.landmarks is the current generation's; guarded by labels_mutex
   std::unique_ptr<rocksdb::DB> database;
-  std::unique_ptr<Sketcher> sketcher;
-  std::unique_ptr<VectorIndex> index;
-  // The index holds sketcher->unweighted(sketch): raw distances d(q_i, S), under L∞.
 
-  mutable std::shared_mutex labels_mutex;  // guards the two maps and next_label
+  mutable std::shared_mutex labels_mutex;  // guards the maps, next_label, settings and `current`
+  std::shared_ptr<Generation> current;
   std::unordered_map<std::string, std::int64_t> label_of_id;
   std::unordered_map<std::int64_t, std::string> id_of_label;
   std::int64_t next_label = 1;
-  std::mutex write_mutex;  // writes are serialised
 
-  Result<StoredShape> load(const std::string& id) const;  // shape framed, for queries
+  std::mutex write_mutex;  // writes are serialised; also guards the refit fields below
+  // While a refit runs: the generation being built, and the last shape key it has sketched
+  // (writes to ids at or before it sketch into `pending` themselves, later ones are left to
+  // the refit).
+  std::shared_ptr<Generation> pending;
+  std::string pending_covered_up_to;
+  std::mutex refit_mutex;  // one refit at a time
+
+  std::shared_ptr<Generation> current_generation() const {
+    std::shared_lock lock(labels_mutex);
+    return current;
+  }
+  // The shape framed for queries and its sketch in `generation`; not_found if the id is not
+  // stored, or no longer holds `label` when one is given (replaced since an index search).
+  Result<StoredShape> load(const std::string& id, const Generation& generation,
+                           std::optional<std::int64_t> label = std::nullopt) const;
   Result<StoredShape> load_as_given(const std::string& id) const;
 };
 
+// Store keys (index/STORE_FORMAT.md).
 std::string shape_key(const std::string& id);
-Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, std::size_t dimension,
-                                  const ShapeLimits& limits);
+std::string sketch_key(std::uint64_t generation, const std::string& id);
+std::string sketch_prefix(std::uint64_t generation);
+// A sketch value: the record's label (u64) then the floats.
+std::string encode_sketch(std::int64_t label, std::span<const float> sketch);
+Status from_rocksdb(const rocksdb::Status& status, const std::string& doing);
+rocksdb::WriteOptions durable_write();  // synced: returns once on disk
+void put_manifest(rocksdb::WriteBatch& batch, const CollectionSettings& settings);
+
+Result<StoredShape> decode_record(const std::string& id, std::string_view bytes, const ShapeLimits& limits);
 
 }  // namespace waymark

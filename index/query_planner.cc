@@ -22,16 +22,22 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 
 const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", "sketch"};
 
-// The query, framed and prepared once for every candidate.
+// The query, framed and prepared once for every candidate, in one landmark generation: the
+// query holds that generation to its end, so it never compares sketches of two.
 struct PreparedQuery {
-  PreparedQuery(const Shape& framed, const Collection::State& state)
-      : shape(framed), prepared(framed), sketch(state.sketcher->sketch(framed)), raw(state.sketcher->unweighted(sketch)) {
+  PreparedQuery(const Shape& framed, std::shared_ptr<const Generation> generation_in)
+      : generation(std::move(generation_in)),
+        shape(framed),
+        prepared(framed),
+        raw(generation->sketcher.unweighted(generation->sketcher.sketch(framed))) {
     if (Result<Path> path = curve_of(framed)) curve = std::move(*path);
+    for (float value : raw) largest_raw = std::max<double>(largest_raw, value);
   }
+  std::shared_ptr<const Generation> generation;
   Shape shape;
   PreparedShape prepared;
-  std::vector<float> sketch;
-  std::vector<float> raw;  // what the index is searched with
+  std::vector<float> raw;  // unweighted landmark distances: what the index is searched with
+  double largest_raw = 0;
   std::optional<Path> curve;  // when the query is a single curve
 };
 
@@ -60,8 +66,7 @@ class TopHits {
 // nullopt when the sketch bound, the box or endpoint bound or the decision procedure shows it
 // is farther, or the metric does not apply to the stored shape. Cheapest test first.
 std::optional<double> distance_within(const PreparedQuery& query, const StoredShape& stored,
-                                      const Collection::State& state, Metric metric, double threshold,
-                                      QueryStats& stats) {
+                                      Metric metric, double threshold, QueryStats& stats) {
   std::optional<Path> curve;
   if (metric != Metric::hausdorff) {
     Result<Path> path = curve_of(stored.shape);
@@ -71,7 +76,7 @@ std::optional<double> distance_within(const PreparedQuery& query, const StoredSh
     }
     curve = std::move(*path);
   }
-  if (state.sketcher->linf_lower_bound(query.sketch, stored.sketch) > threshold) {
+  if (Sketcher::unweighted_linf_lower_bound(query.raw, stored.raw) > threshold) {
     ++stats.pruned_by_sketch_bound;
     return std::nullopt;
   }
@@ -106,14 +111,13 @@ std::optional<double> distance_within(const PreparedQuery& query, const StoredSh
 }
 
 // Scores one stored shape into `top`.
-void score(const PreparedQuery& query, const StoredShape& stored, const Collection::State& state, Metric metric,
-           TopHits& top, QueryStats& stats) {
-  const double sketch_distance = Sketcher::weighted_distance(query.sketch, stored.sketch);
+void score(const PreparedQuery& query, const StoredShape& stored, Metric metric, TopHits& top, QueryStats& stats) {
+  const double sketch_distance = query.generation->sketcher.weighted_distance_of_unweighted(query.raw, stored.raw);
   if (metric == Metric::sketch) {
     top.offer({stored.id, sketch_distance, sketch_distance, stored.metadata});
     return;
   }
-  if (std::optional<double> distance = distance_within(query, stored, state, metric, top.worst(), stats)) {
+  if (std::optional<double> distance = distance_within(query, stored, metric, top.worst(), stats)) {
     top.offer({stored.id, *distance, sketch_distance, stored.metadata});
   }
 }
@@ -160,7 +164,8 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
   const std::size_t extra = excluded_label ? 1 : 0;
   std::size_t fetch = std::min(budget, first_fetch);
   while (true) {
-    Result<std::vector<Neighbour>> neighbours = state.index->search(query.raw, fetch + extra);
+    const VectorIndex& index = query.generation->index;
+    Result<std::vector<Neighbour>> neighbours = index.search(query.raw, fetch + extra);
     if (!neighbours) return neighbours.status();
     for (const Neighbour& n : *neighbours) {
       if (n.label == excluded_label || !seen.insert(n.label).second) continue;
@@ -171,7 +176,7 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
         if (found == state.id_of_label.end()) continue;  // removed since the search
         id = found->second;
       }
-      Result<StoredShape> candidate = state.load(id);
+      Result<StoredShape> candidate = state.load(id, *query.generation, n.label);
       if (!candidate) {
         if (candidate.status().code() == StatusCode::not_found) continue;  // removed since the search
         return candidate.status();
@@ -185,10 +190,13 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
     }
     // Every stored shape drawn? (A size read after the search can only be larger if shapes were
     // added meanwhile, which makes this conservative.)
-    if (neighbours->size() < fetch + extra || neighbours->size() >= state.index->size()) return true;
+    if (neighbours->size() < fetch + extra || neighbours->size() >= index.size()) return true;
     // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
-    // bounds its exact distance from below. The factor allows for float rounding.
-    const double unseen_bound = neighbours->back().distance * (1 - 1e-5);
+    // bounds its exact distance from below, less the float rounding of the stored values
+    // (relative to the values, |b| ≤ |a| + difference) and of FAISS's own arithmetic.
+    const double last = neighbours->back().distance;
+    const double unseen_bound = std::max(
+        0.0, last * (1 - 1e-6) - Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + last));
     if (enough(unseen_bound)) return true;
     if (fetch >= budget || neighbours->size() == extra) return false;
     fetch = std::min(budget, fetch * 4);
@@ -204,14 +212,13 @@ Status check_query(const PreparedQuery& query, std::size_t k, Metric metric) {
   return Status::ok();
 }
 
-Result<QueryAnswer> run_query(const Collection::State& state, const Shape& framed, const QueryOptions& options,
+Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuery& query, const QueryOptions& options,
                               std::optional<std::int64_t> excluded_label) {
-  const PreparedQuery query(framed, state);
   if (Status s = check_query(query, options.k, options.metric); !s.is_ok()) return s;
   Result<MetadataFilter> filter = MetadataFilter::parse(options.metadata_filter);
   if (!filter) return filter.status();
   const std::size_t budget = options.candidate_budget > 0 ? options.candidate_budget
-                             : options.exact              ? state.index->size()
+                             : options.exact              ? query.generation->index.size()
                                                           : 20 * options.k;
   QueryAnswer answer;
   TopHits top(options.k);
@@ -220,7 +227,7 @@ Result<QueryAnswer> run_query(const Collection::State& state, const Shape& frame
   Result<bool> complete = walk_candidates(
       state, query, excluded_label, *filter, std::max<std::size_t>(4 * options.k, 32), budget, answer.stats,
       [&](const StoredShape& candidate) {
-        score(query, candidate, state, options.metric, top, answer.stats);
+        score(query, candidate, options.metric, top, answer.stats);
         return true;
       },
       [&](double unseen_bound) { return options.metric != Metric::sketch && unseen_bound > top.worst(); });
@@ -243,13 +250,16 @@ Result<Metric> parse_metric(const std::string& name) {
 
 Result<QueryAnswer> Collection::nearest(const Shape& query, const QueryOptions& options) const {
   if (Status s = validate(query, state_->settings.limits); !s.is_ok()) return s;
-  return run_query(*state_, apply_frame(query, state_->settings.frame), options, std::nullopt);
+  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), state_->current_generation());
+  return run_query(*state_, prepared, options, std::nullopt);
 }
 
 Result<QueryAnswer> Collection::nearest_to_stored(const std::string& id, const QueryOptions& options) const {
-  Result<StoredShape> stored = state_->load(id);
+  std::shared_ptr<const Generation> generation = state_->current_generation();
+  Result<StoredShape> stored = state_->load(id, *generation);
   if (!stored) return stored.status();
-  return run_query(*state_, stored->shape, options, stored->label);
+  const PreparedQuery prepared(stored->shape, std::move(generation));
+  return run_query(*state_, prepared, options, stored->label);
 }
 
 Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& options) const {
@@ -261,19 +271,20 @@ Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& o
     return invalid_argument("a range query needs an exact metric (hausdorff, frechet or discrete-frechet)", "metric");
   }
   if (options.max_results == 0) return invalid_argument("max_results must be at least 1", "max_results");
-  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_);
+  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), state_->current_generation());
   if (Status s = check_query(prepared, 1, options.metric); !s.is_ok()) return s;
   Result<MetadataFilter> filter = MetadataFilter::parse(options.metadata_filter);
   if (!filter) return filter.status();
   QueryAnswer answer;
   bool truncated = false;
   Result<bool> complete = walk_candidates(
-      *state_, prepared, std::nullopt, *filter, 64, state_->index->size(), answer.stats,
+      *state_, prepared, std::nullopt, *filter, 64, prepared.generation->index.size(), answer.stats,
       [&](const StoredShape& candidate) {
         if (std::optional<double> distance =
-                distance_within(prepared, candidate, *state_, options.metric, options.radius, answer.stats);
+                distance_within(prepared, candidate, options.metric, options.radius, answer.stats);
             distance && *distance <= options.radius) {
-          answer.hits.push_back({candidate.id, *distance, Sketcher::weighted_distance(prepared.sketch, candidate.sketch),
+          answer.hits.push_back({candidate.id, *distance,
+                                 prepared.generation->sketcher.weighted_distance_of_unweighted(prepared.raw, candidate.raw),
                                  candidate.metadata});
           if (answer.hits.size() >= options.max_results) {
             truncated = true;
@@ -292,7 +303,7 @@ Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& o
 
 Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const QueryOptions& options) const {
   if (Status s = validate(query, state_->settings.limits); !s.is_ok()) return s;
-  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), *state_);
+  const PreparedQuery prepared(apply_frame(query, state_->settings.frame), state_->current_generation());
   if (Status s = check_query(prepared, options.k, options.metric); !s.is_ok()) return s;
   QueryAnswer answer;
   TopHits top(options.k);
@@ -300,14 +311,17 @@ Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const Q
   std::unique_ptr<rocksdb::Iterator> it(state_->database->NewIterator(rocksdb::ReadOptions()));
   const std::string prefix = shape_key("");
   for (it->Seek(prefix); it->Valid() && it->key().starts_with(prefix); it->Next()) {
-    Result<StoredShape> stored = decode_record(it->key().ToString().substr(prefix.size()), it->value().ToStringView(),
-                                               state_->sketcher->dimension(), state_->settings.limits);
+    Result<StoredShape> stored =
+        decode_record(it->key().ToString().substr(prefix.size()), it->value().ToStringView(), state_->settings.limits);
     if (!stored) return stored.status();
+    Result<std::vector<float>> raw = prepared.generation->index.vector_of(stored->label);
+    if (!raw) continue;  // replaced since the scan began
+    stored->raw = std::move(*raw);
     stored->shape = apply_frame(stored->shape, state_->settings.frame);
     ++answer.stats.candidates_fetched;
     TopHits single(1);
     QueryStats ignored;
-    score(prepared, *stored, *state_, options.metric, single, ignored);  // top of 1 with worst = ∞: never pruned
+    score(prepared, *stored, options.metric, single, ignored);  // top of 1 with worst = ∞: never pruned
     answer.stats.not_applicable += ignored.not_applicable;
     answer.stats.exact_evaluations += ignored.exact_evaluations;
     for (QueryHit& hit : single.take()) top.offer(std::move(hit));

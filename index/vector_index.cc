@@ -61,6 +61,23 @@ Status VectorIndex::remove(std::span<const std::int64_t> labels) {
   return Status::ok();
 }
 
+Result<std::vector<float>> VectorIndex::vector_of(std::int64_t label) const {
+  std::shared_lock lock(mutex_);
+  // IndexIDMap2::reconstruct throws for an unknown label; look first so the common "removed
+  // since the search" case costs no exception.
+  const auto& map = static_cast<const faiss::IndexIDMap2&>(*index_);
+  if (map.rev_map.find(label) == map.rev_map.end()) {
+    return Status(StatusCode::not_found, "no vector with label " + std::to_string(label));
+  }
+  std::vector<float> out(dimension_);
+  try {
+    index_->reconstruct(label, out.data());
+  } catch (const std::exception& error) {
+    return from_exception(error);
+  }
+  return out;
+}
+
 Result<std::vector<Neighbour>> VectorIndex::search(std::span<const float> query, std::size_t count) const {
   if (query.size() != dimension_) return Status(StatusCode::internal, "query dimension mismatch");
   std::shared_lock lock(mutex_);

@@ -6,8 +6,8 @@
 // exactly; the query planner relies on that to certify answers. Collections index raw
 // (unweighted) landmark distances under L∞: that distance is itself the lower bound on d_H and
 // d_F, so candidates arrive in lower-bound order (L∞ flat search is slower than L2 per vector,
-// but on real shapes it finds the true neighbours with far fewer candidates). Graph (HNSW) and partitioned
-// (IVF) kinds are future work (issue 3).
+// but on real shapes it finds the true neighbours with far fewer candidates). Graph (HNSW) and
+// partitioned (IVF) kinds are future work (issue 3).
 // Thread safety: search() calls may run concurrently; add() and remove() take an exclusive
 // lock. FAISS exceptions are caught here and returned as Status.
 #pragma once
@@ -48,6 +48,8 @@ class VectorIndex {
   // vectors.size() == labels.size() × dimension(). A label already present must be removed first.
   Status add(std::span<const std::int64_t> labels, std::span<const float> vectors);
   Status remove(std::span<const std::int64_t> labels);
+  // The vector stored under `label`; not_found when no vector has that label. O(d).
+  Result<std::vector<float>> vector_of(std::int64_t label) const;
   // The `count` nearest vectors, nearest first (fewer when the index holds fewer). O(n · d).
   Result<std::vector<Neighbour>> search(std::span<const float> query, std::size_t count) const;
 

@@ -135,4 +135,26 @@ double Sketcher::weighted_distance(std::span<const float> a, std::span<const flo
   return std::sqrt(sum);
 }
 
+double Sketcher::unweighted_linf_lower_bound(std::span<const float> a, std::span<const float> b) {
+  assert(a.size() == b.size());
+  // A value went through two float roundings (the sketch, then the division by sqrt(w)), each
+  // within 2^-24 relative, after a double computation a few ulps off: 2^-21 covers all three.
+  double bound = 0;
+  for (std::size_t k = 0; k < a.size(); ++k) {
+    const double va = a[k], vb = b[k];
+    bound = std::max(bound, std::fabs(va - vb) - kUnweightedRelativeError * (std::fabs(va) + std::fabs(vb)));
+  }
+  return bound;
+}
+
+double Sketcher::weighted_distance_of_unweighted(std::span<const float> a, std::span<const float> b) const {
+  assert(a.size() == dimension() && b.size() == dimension());
+  double sum = 0;
+  for (std::size_t k = 0; k < a.size(); ++k) {
+    const double d = (static_cast<double>(a[k]) - b[k]) * root_weight_[k];
+    sum += d * d;
+  }
+  return std::sqrt(sum);
+}
+
 }  // namespace waymark

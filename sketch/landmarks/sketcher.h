@@ -49,6 +49,15 @@ class Sketcher {
   // Euclidean distance between two sketches (what an L2 vector index computes). O(n).
   static double weighted_distance(std::span<const float> a, std::span<const float> b);
 
+  // The same two quantities from unweighted vectors a = unweighted(sketch of A), b likewise
+  // (what collections keep in their vector index). The bound allows for the rounding of both
+  // the sketch and the unweighted value to float. O(n).
+  static double unweighted_linf_lower_bound(std::span<const float> a, std::span<const float> b);
+  double weighted_distance_of_unweighted(std::span<const float> a, std::span<const float> b) const;
+  // Relative rounding allowance of one unweighted value (used by the bounds above and by
+  // callers that bound an L∞ distance computed elsewhere, e.g. by the vector index).
+  static constexpr double kUnweightedRelativeError = 0x1.0p-21;
+
  private:
   LandmarkSet landmarks_;
   bool region_semantics_;
