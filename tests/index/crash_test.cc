@@ -2,7 +2,10 @@
 // The child (ingest_child) prints a batch's ids only after upsert() returned; after each
 // SIGKILL the collection is reopened and checked: every acknowledged id is present with the
 // shape it was given, its stored sketch equals a fresh sketch of that shape, and ids appear in
-// whole batches only (a batch is 200 consecutive ids).
+// whole batches only (a batch is 200 consecutive ids). The second case also refits the
+// landmarks over and over in the child: the reopened collection must serve one whole
+// generation — every acknowledged shape's sketch equals a fresh sketch under the landmarks
+// the manifest names.
 #include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -24,11 +27,14 @@ using namespace waymark;
 #error "WAYMARK_INGEST_CHILD must name the ingest_child executable"
 #endif
 
-TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
-  const std::filesystem::path directory =
-      std::filesystem::temp_directory_path() / ("waymark-crash-" + std::to_string(::getpid()));
+namespace {
+
+void kill_rounds(bool refit) {
+  const std::filesystem::path directory = std::filesystem::temp_directory_path() /
+                                          ("waymark-crash-" + std::to_string(::getpid()) + (refit ? "-refit" : ""));
   std::filesystem::remove_all(directory);
   std::size_t next = 0, acknowledged_total = 0;
+  std::uint64_t newest_generation = 1;
   SeededRandom timing(3);
   for (int round = 0; round < 8; ++round) {
     int pipe_ends[2];
@@ -38,7 +44,8 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
     if (child == 0) {
       dup2(pipe_ends[1], STDOUT_FILENO);
       close(pipe_ends[0]);
-      execl(WAYMARK_INGEST_CHILD, WAYMARK_INGEST_CHILD, directory.c_str(), std::to_string(next).c_str(), nullptr);
+      execl(WAYMARK_INGEST_CHILD, WAYMARK_INGEST_CHILD, directory.c_str(), std::to_string(next).c_str(),
+            refit ? "refit" : nullptr, nullptr);
       _exit(127);
     }
     close(pipe_ends[1]);
@@ -53,6 +60,11 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
     for (ssize_t n; (n = read(pipe_ends[0], buffer, sizeof buffer)) > 0;) printed.append(buffer, n);
     close(pipe_ends[0]);
     std::size_t last_acknowledged = next;  // exclusive
+    std::uint64_t last_switched = 0;  // the newest generation the child saw switched to
+    for (std::size_t pos = 0; (pos = printed.find("generation ", pos)) != std::string::npos; ++pos) {
+      unsigned long long generation = 0;
+      if (std::sscanf(printed.c_str() + pos, "generation %llu", &generation) == 1) last_switched = generation;
+    }
     for (std::size_t pos = 0; (pos = printed.find("acked ", pos)) != std::string::npos; ++pos) {
       std::size_t first = 0, last = 0;
       if (std::sscanf(printed.c_str() + pos, "acked %zu %zu", &first, &last) == 2) last_acknowledged = last + 1;
@@ -70,7 +82,10 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
     INFO("round " << round << ": acknowledged up to " << last_acknowledged << ", stored " << stored);
     CHECK(stored >= last_acknowledged);   // nothing acknowledged is lost
     CHECK(stored % 200 == 0);              // whole batches only
-    const Sketcher sketcher((*collection)->settings().landmarks);
+    const std::uint64_t generation = (*collection)->settings().landmarks.generation;
+    CHECK(generation >= last_switched);  // a switch, once returned, is durable
+    newest_generation = std::max(newest_generation, generation);
+    if (refit) CHECK((*collection)->settings().landmarks.layout == (generation > 1 ? LandmarkLayout::fitted : LandmarkLayout::grid));
     for (std::size_t id = 0; id < stored; id += 37) {
       Result<ShapeRecord> record = (*collection)->get("shape-" + std::to_string(id));
       REQUIRE(record.is_ok());
@@ -92,7 +107,17 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") {
     }
     next = stored;  // the next child continues after what is stored
   }
-  WARN("acknowledged " << acknowledged_total << " shapes over 8 kills; none lost");
+  WARN("acknowledged " << acknowledged_total << " shapes over 8 kills" << (refit ? " during refits" : "") << "; none lost");
   CHECK(acknowledged_total > 0);
+  if (refit) {
+    WARN("landmark generation reached: " << newest_generation);
+    CHECK(newest_generation > 1);  // refits did switch between kills
+  }
   std::filesystem::remove_all(directory);
 }
+
+}  // namespace
+
+TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") { kill_rounds(false); }
+
+TEST_CASE("KillDuringRefitServesOneWholeGeneration") { kill_rounds(true); }

@@ -1,10 +1,13 @@
 // Helper for the crash test: creates or opens a collection and upserts batches of seeded
 // random shapes forever, printing "acked <first> <last>" after each batch's upsert returns
 // (that is, once it is durable). The parent kills this process with SIGKILL at random moments.
-// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER
+// With "refit" as a third argument, a second thread refits the landmarks over and over
+// meanwhile, so kills also land during re-sketching and generation switches.
+// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER [refit]
 #include <cstdio>
 #include <cstdlib>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include "index/collection.h"
@@ -13,7 +16,8 @@
 using namespace waymark;
 
 int main(int argc, char** argv) {
-  if (argc != 3) return 2;
+  if (argc != 3 && argc != 4) return 2;
+  const bool refit = argc == 4 && std::string(argv[3]) == "refit";
   const std::string directory = argv[1];
   std::size_t next = std::strtoull(argv[2], nullptr, 10);
   Result<std::unique_ptr<Collection>> collection = Collection::open(directory);
@@ -25,6 +29,22 @@ int main(int argc, char** argv) {
   if (!collection) {
     std::fprintf(stderr, "%s\n", collection.status().to_string().c_str());
     return 1;
+  }
+  if (refit) {
+    std::thread([&collection] {
+      for (std::uint64_t seed = 1;; ++seed) {
+        RefitOptions options;
+        options.seed = seed;
+        options.batch_size = 50;
+        options.sample_size = 100;
+        RefitProgress progress;
+        Result<std::uint64_t> generation = (*collection)->refit(options, progress);
+        if (generation) {
+          std::printf("generation %llu\n", static_cast<unsigned long long>(*generation));
+          std::fflush(stdout);
+        }
+      }
+    }).detach();
   }
   while (true) {
     std::vector<ShapeRecord> batch;
