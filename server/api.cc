@@ -41,6 +41,10 @@ const std::vector<RouteDescription> kRoutes = {
     {"POST", "/v1/collections/{name}/nearest", Access::read, true, false},
     {"POST", "/v1/collections/{name}/within", Access::read, true, false},
     {"POST", "/v1/distance", Access::read, true, false},
+    {"POST", "/v1/collections/{name}/refit", Access::write, false, false},
+    {"GET", "/v1/jobs", Access::read, false, false},
+    {"GET", "/v1/jobs/{id}", Access::read, false, false},
+    {"DELETE", "/v1/jobs/{id}", Access::write, false, false},
 };
 
 std::string dump(const Json& json) { return json.dump(-1, ' ', false, Json::error_handler_t::replace); }
@@ -301,13 +305,29 @@ Result<CollectionSettings> settings_from(const Json& body, const ServerConfig& c
   } else if (*layout == "random") {
     set = random_landmarks(domain, *count, *seed);
   } else if (*layout == "fitted") {
-    return Status(StatusCode::failed_precondition, "fitted landmarks are fitted to stored shapes: create the collection with grid or random landmarks", "landmarks.layout");
+    return Status(StatusCode::failed_precondition, "fitted landmarks are fitted to stored shapes: create the collection with grid or random landmarks, "
+                  "store shapes, then refit it (POST /v1/collections/{name}/refit)", "landmarks.layout");
   } else {
     return invalid_argument("landmarks.layout must be grid or random", "landmarks.layout");
   }
   if (!set) return invalid_argument(set.status().message(), "landmarks");
   settings.landmarks = std::move(*set);
   return settings;
+}
+
+Result<RefitOptions> refit_options_from(const Json& body) {
+  if (Status s = check_known_fields(body, {"landmark_count", "sample_size", "seed"}); !s.is_ok()) return s;
+  RefitOptions options;
+  Result<std::size_t> count = size_field(body, "landmark_count", 0, 0, LandmarkLimits{}.max_count);
+  Result<std::size_t> sample = size_field(body, "sample_size", options.sample_size, 2, 100000);
+  Result<std::size_t> seed = size_field(body, "seed", options.seed, 0, std::numeric_limits<std::size_t>::max());
+  for (const Status& s : {count.status(), sample.status(), seed.status()}) {
+    if (!s.is_ok()) return s;
+  }
+  options.landmark_count = *count;
+  options.sample_size = *sample;
+  options.seed = *seed;
+  return options;
 }
 
 // --- queries --------------------------------------------------------------------------------
@@ -530,6 +550,14 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
                                {"milliseconds", milliseconds_since(start)}});
   }
 
+  if (pattern == "/v1/jobs") return json_response(200, {{"jobs", jobs_.list()}});
+  if (pattern == "/v1/jobs/{id}") {
+    const std::string& id = context.parameters.at("id");
+    Result<Json> job = method == "DELETE" ? jobs_.cancel(id) : jobs_.describe(id);
+    if (!job) return from_status(job.status());
+    return json_response(200, *job);
+  }
+
   // Everything below is about one collection.
   const std::string& name = context.parameters.at("name");
   if (Status s = Catalog::check_name(name); !s.is_ok()) return from_status(s);
@@ -553,6 +581,20 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   if (!found) return from_status(found.status());
   Collection& collection = **found;
   if (pattern == "/v1/collections/{name}") return json_response(200, describe(name, collection));
+  if (pattern == "/v1/collections/{name}/refit") {
+    Result<Json> body = parse_object(request.body, true);
+    if (!body) return from_status(body.status());
+    Result<RefitOptions> options = refit_options_from(*body);
+    if (!options) return from_status(options.status());
+    if (collection.size() < 2) {
+      return from_status(Status(StatusCode::failed_precondition, "a landmark refit needs at least two stored shapes"));
+    }
+    Result<Json> job = jobs_.start_refit(name, *found, *options);
+    if (!job) return from_status(job.status());
+    HttpResponse response = json_response(202, *job);
+    response.headers.emplace_back("Location", "/v1/jobs/" + (*job)["id"].get<std::string>());
+    return response;
+  }
 
   if (pattern == "/v1/collections/{name}/shapes/{id}") {
     const std::string& id = context.parameters.at("id");

@@ -19,6 +19,7 @@
 
 #include "index/catalog.h"
 #include "server/config.h"
+#include "server/jobs.h"
 #include "server/metrics.h"
 
 namespace waymark::server {
@@ -79,6 +80,7 @@ class Api {
   Metrics& metrics_;
   std::atomic<Catalog*> catalog_{nullptr};
   std::unique_ptr<Catalog> owned_catalog_;
+  JobRunner jobs_;  // declared last: destroyed first, so running refits stop before the catalog closes
 };
 
 }  // namespace waymark::server

@@ -151,6 +151,7 @@ def main():
     try:
         server = Server(data, "--max-body-bytes", "65536", "--read-timeout-ms", "1500", "--bulk-batch-size", "100")
         run_api_checks(server, directory)
+        run_refit_checks(server)
         before = shapes_snapshot(server, "parts")
         query = {"shape": "LINESTRING (0 0, 10 2, 20 -1, 30 0)", "k": 5, "mode": "exact"}
         _, answer_before = server.call("POST", "/v1/collections/parts/nearest", query)
@@ -160,6 +161,8 @@ def main():
         # Restart: everything reads back the same, and the same query gives the same answer.
         server = Server(data, "--max-concurrent-queries", "1", "--worker-threads", "1")
         check(shapes_snapshot(server, "parts") == before, "restart: every shape and its metadata read back")
+        _, described = server.call("GET", "/v1/collections/parts")
+        check(described["landmarks"]["generation"] == 2, f"restart: refitted generation kept: {described['landmarks']}")
         _, answer_after = server.call("POST", "/v1/collections/parts/nearest", query)
         check([(r["id"], r["distance"]) for r in answer_after["results"]] ==
               [(r["id"], r["distance"]) for r in answer_before["results"]], "restart: same answer")
@@ -173,6 +176,68 @@ def main():
         print(f"{len(failures)} checks failed")
         sys.exit(1)
     print(f"all {checks_run[0]} server checks passed")
+
+
+def check_exact_against_brute_force(server, label):
+    """Exact kNN equals a brute-force scan through /v1/distance over every stored shape."""
+    stored = shapes_snapshot(server, "parts")
+    query_shape = "LINESTRING (0 0, 10 2, 20 -1, 30 0)"
+    for metric in ["hausdorff", "frechet"]:
+        status, answer = server.call("POST", "/v1/collections/parts/nearest",
+                                     {"shape": query_shape, "k": 5, "metric": metric, "mode": "exact"})
+        check(status == 200 and answer["certified"], f"{label}exact {metric}: {status} {answer}")
+        distances = []
+        for shape in stored:
+            if metric == "frechet" and shape["geometry"]["type"].startswith("Multi"):
+                continue
+            s, d = server.call("POST", "/v1/distance", {"a": query_shape, "b": shape["geometry"], "metric": metric,
+                                                        "frame": "unit"})
+            if s == 200:
+                distances.append((d["distance"], shape["id"]))
+        distances.sort()
+        expected = [(round(d, 9), i) for d, i in distances[:5]]
+        got = [(round(r["distance"], 9), r["id"]) for r in answer["results"]]
+        check(got == expected, f"{label}exact {metric} equals brute force: {got} vs {expected}")
+        check(answer["stats"]["exact_evaluations"] < len(stored), f"{label}exact {metric}: the bounds pruned")
+
+
+def run_refit_checks(server):
+    """Landmark refit as a background job: progress on /v1/jobs, a new fitted generation,
+    exact answers unchanged, and the errors of the job routes."""
+    expect_error(server, "POST", "/v1/collections/parts/refit", {}, 401, "unauthenticated", token=None,
+                 label="refit without a token")
+    expect_error(server, "POST", "/v1/collections/parts/refit", {}, 403, "forbidden", token=READ,
+                 label="refit with a read token")
+    expect_error(server, "POST", "/v1/collections/parts/refit", {"landmarks": 3}, 400, "invalid_argument",
+                 where="landmarks", label="refit with an unknown field")
+    expect_error(server, "POST", "/v1/collections/parts/refit", {"sample_size": 1}, 400, "invalid_argument",
+                 where="sample_size", label="refit with a sample of one")
+    expect_error(server, "POST", "/v1/collections/nothing/refit", {}, 404, "not_found", label="refit unknown collection")
+    expect_error(server, "GET", "/v1/jobs/refit-999999", None, 404, "not_found", label="unknown job")
+    expect_error(server, "DELETE", "/v1/jobs/refit-000001", None, 401, "unauthenticated", token=None,
+                 label="cancel without a token")
+
+    status, job = server.call("POST", "/v1/collections/parts/refit", {"landmark_count": 48, "sample_size": 300},
+                              token=WRITE)
+    check(status == 202 and job["state"] in ("running", "succeeded") and job["kind"] == "landmark_refit" and
+          job["collection"] == "parts", f"refit started: {status} {job}")
+    deadline = time.time() + 60
+    while job.get("state") == "running" and time.time() < deadline:
+        time.sleep(0.05)
+        status, job = server.call("GET", "/v1/jobs/" + job["id"])
+        check(status == 200 and 0 <= job["fraction"] <= 1 and job["shapes_done"] <= job["shapes_total"],
+              f"job progress: {job}")
+    check(job.get("state") == "succeeded" and job.get("generation") == 2 and job["fraction"] == 1 and
+          job["shapes_done"] == job["shapes_total"] > 0, f"refit finished: {job}")
+    status, listing = server.call("GET", "/v1/jobs")
+    check(status == 200 and [j["id"] for j in listing["jobs"]] == [job["id"]], f"job list: {listing}")
+    status, described = server.call("GET", "/v1/collections/parts")
+    landmarks = described["landmarks"]
+    check(landmarks["generation"] == 2 and landmarks["layout"] == "fitted" and landmarks["count"] == 48,
+          f"collection after refit: {landmarks}")
+    status, cancelled = server.call("DELETE", "/v1/jobs/" + job["id"], token=WRITE)
+    check(status == 200 and cancelled["state"] == "succeeded", f"cancelling a finished job changes nothing: {cancelled}")
+    check_exact_against_brute_force(server, "after refit: ")
 
 
 def run_api_checks(server, directory):
@@ -242,26 +307,8 @@ def run_api_checks(server, directory):
     status, described = server.call("GET", "/v1/collections/parts")
     check(described["stats"]["shapes"] == 604 and described["stats"]["last_write"], f"stats: {described['stats']}")
 
-    # Exact kNN equals a brute-force scan through /v1/distance over every stored shape.
-    stored = shapes_snapshot(server, "parts")
+    check_exact_against_brute_force(server, "")
     query_shape = "LINESTRING (0 0, 10 2, 20 -1, 30 0)"
-    for metric in ["hausdorff", "frechet"]:
-        status, answer = server.call("POST", "/v1/collections/parts/nearest",
-                                     {"shape": query_shape, "k": 5, "metric": metric, "mode": "exact"})
-        check(status == 200 and answer["certified"], f"exact {metric}: {status} {answer}")
-        distances = []
-        for shape in stored:
-            if metric == "frechet" and shape["geometry"]["type"].startswith("Multi"):
-                continue
-            s, d = server.call("POST", "/v1/distance", {"a": query_shape, "b": shape["geometry"], "metric": metric,
-                                                        "frame": "unit"})
-            if s == 200:
-                distances.append((d["distance"], shape["id"]))
-        distances.sort()
-        expected = [(round(d, 9), i) for d, i in distances[:5]]
-        got = [(round(r["distance"], 9), r["id"]) for r in answer["results"]]
-        check(got == expected, f"exact {metric} equals brute force: {got} vs {expected}")
-        check(answer["stats"]["exact_evaluations"] < len(stored), f"exact {metric}: the bounds pruned")
 
     # By stored id (excludes itself), range, filter.
     status, answer = server.call("POST", "/v1/collections/parts/nearest", {"id": "P-0003", "k": 3})
