@@ -10,6 +10,7 @@ set -euo pipefail
 
 packages=(
   build-essential cmake ninja-build pkg-config
+  curl                              # the demo script talks to waymarkd with it
   libboost-dev                      # Asio/Beast, header-only (1.74 line, see above)
   libfaiss-dev libopenblas-dev      # vector index; OpenBLAS for batched flat search
   libeigen3-dev nlohmann-json3-dev libspdlog-dev libfmt-dev

@@ -4,6 +4,7 @@
 #include <string>
 #include <vector>
 
+#include "clients/cli/demo_catalogue.h"
 #include "clients/cli/geometry_commands.h"
 
 namespace {
@@ -20,6 +21,11 @@ Geometry commands (local, no server):
       with one shape per line, in the frame given by --frame.
   sketch --landmarks FILE [--json] [--region] SHAPE
       Prints the shape's sketch vector against the landmarks.
+
+Demo data:
+  demo-catalogue [--count N] [--seed S]
+      Prints an invented parts catalogue (brackets, gaskets, clips, flanges; outlines in mm,
+      some near-duplicate revisions) as NDJSON lines for POST /v1/collections/NAME/shapes.
 
 Options for every shape operand:
   --format auto|wkt|geojson|svg|points   (default auto)
@@ -40,6 +46,7 @@ int main(int argc, char** argv) {
   if (command == "distance") return waymark::cli::distance_command(words);
   if (command == "landmarks") return waymark::cli::landmarks_command(words);
   if (command == "sketch") return waymark::cli::sketch_command(words);
+  if (command == "demo-catalogue") return waymark::cli::demo_catalogue_command(words);
   std::cerr << "waymark: unknown command '" << command << "'\n\n" << kUsage;
   return 2;
 }

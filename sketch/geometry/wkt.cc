@@ -1,4 +1,5 @@
 // WKT reader and writer (OGC Simple Features Access 1.2.1, part 1, §7 "Well-known Text").
+#include <charconv>
 #include <cmath>
 #include <cstdio>
 #include <string>
@@ -153,10 +154,11 @@ class WktReader {
   std::size_t vertices_read_ = 0;
 };
 
+// The shortest text that reads back as the same double (std::to_chars), so 37.79 stays 37.79.
 void append_number(std::string& out, double value) {
   char buffer[32];
-  std::snprintf(buffer, sizeof buffer, "%.17g", value);
-  out += buffer;
+  const std::to_chars_result written = std::to_chars(buffer, buffer + sizeof buffer, value);
+  out.append(buffer, written.ptr);
 }
 
 void append_path(std::string& out, const Path& path, bool close_ring) {
