@@ -27,7 +27,7 @@ namespace waymark {
 // sketches of two generations, even while a refit switches generations under it.
 struct Generation {
   explicit Generation(const LandmarkSet& landmarks)
-      : sketcher(landmarks), index(landmarks.size(), VectorMetric::linf) {}
+      : sketcher(landmarks), index(landmarks.size()) {}
   std::uint64_t number() const { return sketcher.landmarks().generation; }
   Sketcher sketcher;
   VectorIndex index;  // internally locked: add/remove while queries search

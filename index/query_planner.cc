@@ -8,7 +8,6 @@
 #include <limits>
 #include <optional>
 #include <nlohmann/json.hpp>
-#include <unordered_set>
 
 #include "index/collection_state.h"
 #include "sketch/distance/bounds.h"
@@ -151,34 +150,33 @@ class MetadataFilter {
 };
 
 // Walks the exhaustive index in lower-bound order, in rounds that grow ×4 from `first_fetch`,
-// handing each stored candidate (not excluded, not seen, passing the filter) to `visit`.
-// After each round `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower
-// bound on the exact distance of every shape not drawn yet. Returns whether every stored shape
-// was drawn or ruled out by the bound (so the caller's answer is complete).
+// handing each stored candidate (not excluded, passing the filter) to `visit`. After each
+// round `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower bound on
+// the exact distance of every shape not drawn yet. Returns whether every stored shape was
+// drawn or ruled out by the bound (so the caller's answer is complete).
 template <typename Visit, typename Enough>
 Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
                              std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
                              std::size_t first_fetch, std::size_t budget, QueryStats& stats, Visit visit,
                              Enough enough) {
-  std::unordered_set<std::int64_t> seen;  // labels already handed out (rounds overlap)
-  const std::size_t extra = excluded_label ? 1 : 0;
-  std::size_t fetch = std::min(budget, first_fetch);
+  Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw);
+  if (!scan) return scan.status();
+  std::size_t fetch = std::min(budget, first_fetch), drawn = 0;
   while (true) {
-    const VectorIndex& index = query.generation->index;
-    Result<std::vector<Neighbour>> neighbours = index.search(query.raw, fetch + extra);
-    if (!neighbours) return neighbours.status();
-    for (const Neighbour& n : *neighbours) {
-      if (n.label == excluded_label || !seen.insert(n.label).second) continue;
+    const std::span<const Neighbour> round = scan->next(fetch - drawn);
+    drawn += round.size();
+    for (const Neighbour& n : round) {
+      if (n.label == excluded_label) continue;
       std::string id;
       {
         std::shared_lock lock(state.labels_mutex);
         auto found = state.id_of_label.find(n.label);
-        if (found == state.id_of_label.end()) continue;  // removed since the search
+        if (found == state.id_of_label.end()) continue;  // removed since the scan began
         id = found->second;
       }
       Result<StoredShape> candidate = state.load(id, *query.generation, n.label);
       if (!candidate) {
-        if (candidate.status().code() == StatusCode::not_found) continue;  // removed since the search
+        if (candidate.status().code() == StatusCode::not_found) continue;  // removed or replaced since
         return candidate.status();
       }
       ++stats.candidates_fetched;
@@ -188,17 +186,17 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
       }
       if (!visit(*candidate)) return false;
     }
-    // Every stored shape drawn? (A size read after the search can only be larger if shapes were
-    // added meanwhile, which makes this conservative.)
-    if (neighbours->size() < fetch + extra || neighbours->size() >= index.size()) return true;
+    if (scan->exhausted()) return true;  // every stored shape was drawn
     // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
     // bounds its exact distance from below, less the float rounding of the stored values
-    // (relative to the values, |b| ≤ |a| + difference) and of FAISS's own arithmetic.
-    const double last = neighbours->back().distance;
-    const double unseen_bound = std::max(
-        0.0, last * (1 - 1e-6) - Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + last));
-    if (enough(unseen_bound)) return true;
-    if (fetch >= budget || neighbours->size() == extra) return false;
+    // (relative to the values, |b| ≤ |a| + difference) and of the difference itself.
+    if (!round.empty()) {
+      const double last = round.back().distance;
+      const double unseen_bound = std::max(
+          0.0, last * (1 - 1e-6) - Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + last));
+      if (enough(unseen_bound)) return true;
+    }
+    if (drawn >= budget) return false;
     fetch = std::min(budget, fetch * 4);
   }
 }

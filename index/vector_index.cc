@@ -1,101 +1,132 @@
 #include "index/vector_index.h"
 
-#include <faiss/IndexFlat.h>
-#include <faiss/IndexIDMap.h>
-#include <faiss/impl/FaissException.h>
-#include <faiss/impl/IDSelector.h>
-
+#include <algorithm>
+#include <cmath>
+#include <cstring>
 #include <mutex>
+
+#include "sketch/vector_clones.h"
 
 namespace waymark {
 namespace {
 
-Status from_exception(const std::exception& error) {
-  return Status(StatusCode::internal, std::string("vector index: ") + error.what());
+// Eight floats as one value (GCC vector extension): each clone compiles the arithmetic below
+// to its own instructions (two SSE registers, one AVX2 register, or half an AVX-512 one).
+typedef float Float8 __attribute__((vector_size(32)));
+typedef std::int32_t Int8 __attribute__((vector_size(32)));
+constexpr std::size_t kLanes = 8;
+
+inline Float8 load8(const float* p) {
+  Float8 value;
+  std::memcpy(&value, p, sizeof value);  // unaligned load
+  return value;
+}
+
+// L∞ distance from `query` to each of `count` rows. Stored values are finite, so the
+// comparison-based maximum equals the true one.
+WAYMARK_VECTOR_CLONES
+void linf_distances(const float* __restrict rows, std::size_t count, std::size_t dimension,
+                    const float* __restrict query, float* __restrict out) {
+  const std::size_t whole = dimension - dimension % kLanes;
+  const Int8 magnitude = {0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff,
+                          0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff};
+  for (std::size_t row = 0; row < count; ++row) {
+    const float* vector = rows + row * dimension;
+    Float8 largest8 = {};
+    for (std::size_t base = 0; base < whole; base += kLanes) {
+      const Float8 difference = reinterpret_cast<Float8>(reinterpret_cast<Int8>(load8(vector + base) - load8(query + base)) & magnitude);
+      largest8 = largest8 > difference ? largest8 : difference;
+    }
+    float largest = 0;
+    for (std::size_t lane = 0; lane < kLanes; ++lane) largest = std::max(largest, largest8[lane]);
+    for (std::size_t k = whole; k < dimension; ++k) largest = std::max(largest, std::fabs(vector[k] - query[k]));
+    out[row] = largest;
+  }
+}
+
+bool nearer(const Neighbour& a, const Neighbour& b) {
+  return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
 }
 
 }  // namespace
 
-VectorIndex::VectorIndex(std::size_t dimension, VectorMetric metric) : dimension_(dimension) {
-  auto map = std::make_unique<faiss::IndexIDMap2>(new faiss::IndexFlat(
-      static_cast<faiss::Index::idx_t>(dimension), metric == VectorMetric::linf ? faiss::METRIC_Linf : faiss::METRIC_L2));
-  map->own_fields = true;
-  index_ = std::move(map);
-}
-
-VectorIndex::~VectorIndex() = default;
-
 std::size_t VectorIndex::size() const {
   std::shared_lock lock(mutex_);
-  return static_cast<std::size_t>(index_->ntotal);
+  return labels_.size();
 }
 
 std::size_t VectorIndex::memory_bytes() const {
   std::shared_lock lock(mutex_);
-  const std::size_t n = static_cast<std::size_t>(index_->ntotal);
-  // Flat codes, IDMap2's label array, and its reverse hash map (key, value, node pointer, bucket).
-  return n * (dimension_ * sizeof(float) + sizeof(std::int64_t) + 4 * sizeof(std::int64_t));
+  // Vectors and labels, plus the hash map's node (key, value, next pointer) and bucket.
+  return vectors_.capacity() * sizeof(float) + labels_.capacity() * sizeof(std::int64_t) +
+         row_of_label_.size() * (2 * sizeof(std::int64_t) + 2 * sizeof(void*));
 }
 
 Status VectorIndex::add(std::span<const std::int64_t> labels, std::span<const float> vectors) {
   if (vectors.size() != labels.size() * dimension_) return Status(StatusCode::internal, "vector count mismatch");
-  if (labels.empty()) return Status::ok();
   std::unique_lock lock(mutex_);
-  try {
-    index_->add_with_ids(static_cast<faiss::Index::idx_t>(labels.size()), vectors.data(), labels.data());
-  } catch (const std::exception& error) {
-    return from_exception(error);
+  for (std::int64_t label : labels) {
+    if (row_of_label_.contains(label)) {
+      return Status(StatusCode::internal, "label " + std::to_string(label) + " is already in the vector index");
+    }
   }
+  for (std::size_t i = 0; i < labels.size(); ++i) {
+    row_of_label_.emplace(labels[i], labels_.size());
+    labels_.push_back(labels[i]);
+  }
+  vectors_.insert(vectors_.end(), vectors.begin(), vectors.end());
   return Status::ok();
 }
 
 Status VectorIndex::remove(std::span<const std::int64_t> labels) {
-  if (labels.empty()) return Status::ok();
   std::unique_lock lock(mutex_);
-  try {
-    faiss::IDSelectorBatch selector(labels.size(), labels.data());
-    index_->remove_ids(selector);
-  } catch (const std::exception& error) {
-    return from_exception(error);
+  for (std::int64_t label : labels) {
+    auto found = row_of_label_.find(label);
+    if (found == row_of_label_.end()) continue;
+    const std::size_t row = found->second, last = labels_.size() - 1;
+    row_of_label_.erase(found);
+    if (row != last) {  // the last row fills the hole
+      std::memcpy(vectors_.data() + row * dimension_, vectors_.data() + last * dimension_, dimension_ * sizeof(float));
+      labels_[row] = labels_[last];
+      row_of_label_[labels_[row]] = row;
+    }
+    labels_.pop_back();
+    vectors_.resize(labels_.size() * dimension_);
   }
   return Status::ok();
 }
 
 Result<std::vector<float>> VectorIndex::vector_of(std::int64_t label) const {
   std::shared_lock lock(mutex_);
-  // IndexIDMap2::reconstruct throws for an unknown label; look first so the common "removed
-  // since the search" case costs no exception.
-  const auto& map = static_cast<const faiss::IndexIDMap2&>(*index_);
-  if (map.rev_map.find(label) == map.rev_map.end()) {
-    return Status(StatusCode::not_found, "no vector with label " + std::to_string(label));
-  }
-  std::vector<float> out(dimension_);
-  try {
-    index_->reconstruct(label, out.data());
-  } catch (const std::exception& error) {
-    return from_exception(error);
-  }
-  return out;
+  auto found = row_of_label_.find(label);
+  if (found == row_of_label_.end()) return Status(StatusCode::not_found, "no vector with label " + std::to_string(label));
+  const float* row = vectors_.data() + found->second * dimension_;
+  return std::vector<float>(row, row + dimension_);
 }
 
-Result<std::vector<Neighbour>> VectorIndex::search(std::span<const float> query, std::size_t count) const {
+Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query) const {
   if (query.size() != dimension_) return Status(StatusCode::internal, "query dimension mismatch");
-  std::shared_lock lock(mutex_);
-  count = std::min<std::size_t>(count, static_cast<std::size_t>(index_->ntotal));
-  std::vector<Neighbour> out;
-  if (count == 0) return out;
-  std::vector<float> distances(count);
-  std::vector<faiss::Index::idx_t> labels(count);
-  try {
-    index_->search(1, query.data(), static_cast<faiss::Index::idx_t>(count), distances.data(), labels.data());
-  } catch (const std::exception& error) {
-    return from_exception(error);
+  Scan scan;
+  std::vector<float> distances;
+  {
+    std::shared_lock lock(mutex_);
+    distances.resize(labels_.size());
+    linf_distances(vectors_.data(), labels_.size(), dimension_, query.data(), distances.data());
+    scan.all_.resize(labels_.size());
+    for (std::size_t i = 0; i < labels_.size(); ++i) scan.all_[i] = {labels_[i], distances[i]};
   }
-  out.reserve(count);
-  for (std::size_t i = 0; i < count; ++i) {
-    if (labels[i] >= 0) out.push_back({labels[i], distances[i]});
-  }
-  return out;
+  return scan;
+}
+
+std::span<const Neighbour> VectorIndex::Scan::next(std::size_t count) {
+  const auto begin = all_.begin() + static_cast<std::ptrdiff_t>(handed_out_);
+  const std::size_t taken = std::min(count, all_.size() - handed_out_);
+  const auto end = begin + static_cast<std::ptrdiff_t>(taken);
+  // Select the `taken` nearest of the rest, then order them (ties by label, so scans repeat).
+  if (end != all_.end()) std::nth_element(begin, end, all_.end(), nearer);
+  std::sort(begin, end, nearer);
+  handed_out_ += taken;
+  return {all_.data() + handed_out_ - taken, taken};
 }
 
 }  // namespace waymark

@@ -5,17 +5,13 @@
 #include <cmath>
 #include <limits>
 
+#include "sketch/vector_clones.h"
+
 namespace waymark {
 namespace {
 
 // The hot loop: one segment against every landmark, keeping each landmark's smallest squared
-// distance. Written so the compiler vectorises it over landmarks; target_clones builds AVX-512,
-// AVX2 and baseline versions and picks one at load time, so the binary runs on any x86-64.
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && !defined(__SANITIZE_ADDRESS__)
-#define WAYMARK_VECTOR_CLONES __attribute__((target_clones("avx512f", "avx2", "default")))
-#else
-#define WAYMARK_VECTOR_CLONES
-#endif
+// distance. Written so the compiler vectorises it over landmarks (in every clone).
 
 WAYMARK_VECTOR_CLONES
 void nearest_to_segment(const double* __restrict x, const double* __restrict y, double* __restrict best,
