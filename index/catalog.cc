@@ -33,14 +33,15 @@ Status Catalog::check_name(const std::string& name) {
   return Status::ok();
 }
 
-Result<std::unique_ptr<Catalog>> Catalog::open(const std::string& data_directory) {
+Result<std::unique_ptr<Catalog>> Catalog::open(const std::string& data_directory,
+                                               const ApproximateIndexSettings& approximate) {
   const fs::path collections = fs::path(data_directory) / "collections";
   std::error_code error;
   fs::create_directories(collections, error);
   if (error) {
     return Status(StatusCode::io_error, "cannot create '" + collections.string() + "': " + error.message());
   }
-  std::unique_ptr<Catalog> catalog(new Catalog(collections.string()));
+  std::unique_ptr<Catalog> catalog(new Catalog(collections.string(), approximate));
   for (const fs::directory_entry& entry : fs::directory_iterator(collections, error)) {
     const std::string name = entry.path().filename().string();
     if (name.starts_with(kDroppedPrefix) || name.ends_with(kCreatingSuffix)) {
@@ -48,7 +49,7 @@ Result<std::unique_ptr<Catalog>> Catalog::open(const std::string& data_directory
       continue;
     }
     if (!entry.is_directory() || !check_name(name).is_ok()) continue;  // not ours
-    Result<std::unique_ptr<Collection>> collection = Collection::open(entry.path().string());
+    Result<std::unique_ptr<Collection>> collection = Collection::open(entry.path().string(), approximate);
     if (!collection) {
       const Status& failed = collection.status();
       return Status(failed.code(), "collection '" + name + "': " + failed.message(), failed.where());
@@ -63,8 +64,10 @@ Result<std::shared_ptr<Collection>> Catalog::create(const std::string& name, con
   if (Status s = check_name(name); !s.is_ok()) return s;
   std::lock_guard lock(mutex_);
   if (collections_.contains(name)) return Status(StatusCode::already_exists, "collection '" + name + "' exists");
+  CollectionSettings with_catalog_settings = settings;
+  with_catalog_settings.approximate = approximate_;
   Result<std::unique_ptr<Collection>> created =
-      Collection::create((fs::path(collections_directory_) / name).string(), settings);
+      Collection::create((fs::path(collections_directory_) / name).string(), with_catalog_settings);
   if (!created) return created.status();
   std::shared_ptr<Collection> shared = std::move(*created);
   collections_.emplace(name, shared);

@@ -25,12 +25,14 @@ class Catalog {
  public:
   // Opens (creating if missing) the data directory and every collection in it. Fails on the
   // first collection that does not open, naming it: a damaged store is never skipped silently.
-  static Result<std::unique_ptr<Catalog>> open(const std::string& data_directory);
+  // `approximate` applies to the graph and partitioned collections opened or created here.
+  static Result<std::unique_ptr<Catalog>> open(const std::string& data_directory,
+                                               const ApproximateIndexSettings& approximate = {});
 
   // invalid_argument (where "name") unless `name` follows the rule above.
   static Status check_name(const std::string& name);
 
-  // already_exists if the name is taken.
+  // already_exists if the name is taken. settings.approximate is replaced by the catalog's.
   Result<std::shared_ptr<Collection>> create(const std::string& name, const CollectionSettings& settings);
   // not_found if there is no such collection.
   Result<std::shared_ptr<Collection>> find(const std::string& name) const;
@@ -39,8 +41,10 @@ class Catalog {
   std::vector<std::pair<std::string, std::shared_ptr<Collection>>> list() const;
 
  private:
-  explicit Catalog(std::string collections_directory) : collections_directory_(std::move(collections_directory)) {}
+  Catalog(std::string collections_directory, const ApproximateIndexSettings& approximate)
+      : collections_directory_(std::move(collections_directory)), approximate_(approximate) {}
   std::string collections_directory_;
+  ApproximateIndexSettings approximate_;
   mutable std::mutex mutex_;
   std::map<std::string, std::shared_ptr<Collection>> collections_;
   std::uint64_t drops_ = 0;

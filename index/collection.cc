@@ -61,7 +61,8 @@ Json manifest_json(const CollectionSettings& settings) {
           {"max_parts", settings.limits.max_parts},
           {"max_id_bytes", settings.max_id_bytes},
           {"max_metadata_bytes", settings.max_metadata_bytes},
-          {"default_metric", metric_name(settings.default_metric)}};
+          {"default_metric", metric_name(settings.default_metric)},
+          {"index", index_kind_name(settings.index_kind)}};
 }
 
 struct Manifest {
@@ -96,6 +97,11 @@ Result<Manifest> parse_manifest(const std::string& text) {
       Result<Metric> metric = parse_metric(json.at("default_metric").get<std::string>());
       if (!metric) return metric.status();
       settings.default_metric = *metric;
+    }
+    if (json.contains("index")) {  // absent in manifests written before it existed: exhaustive
+      Result<IndexKind> kind = parse_index_kind(json.at("index").get<std::string>());
+      if (!kind) return Status(StatusCode::data_loss, "store: manifest names " + kind.status().message());
+      settings.index_kind = *kind;
     }
   } catch (const std::exception& error) {
     return Status(StatusCode::data_loss, std::string("store: manifest is damaged: ") + error.what());
@@ -204,8 +210,64 @@ Result<StoredShape> Collection::State::load(const std::string& id, const Generat
   return stored;
 }
 
-Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {}
-Collection::~Collection() = default;
+Generation::Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings)
+    : sketcher(landmarks), index(landmarks.size()) {
+  if (kind == IndexKind::exhaustive) return;
+  std::vector<double> root_weights;
+  for (double weight : landmarks.weights) root_weights.push_back(std::sqrt(weight));
+  approximate = std::make_unique<ApproximateIndex>(kind, std::move(root_weights), settings);
+}
+
+Status Generation::add(std::span<const std::int64_t> labels, std::span<const float> raw_vectors) {
+  if (Status s = index.add(labels, raw_vectors); !s.is_ok()) return s;
+  return approximate ? approximate->added(labels, raw_vectors) : Status::ok();
+}
+
+Status Generation::remove(std::span<const std::int64_t> labels) {
+  if (Status s = index.remove(labels); !s.is_ok()) return s;
+  if (approximate) approximate->removed(labels);
+  return Status::ok();
+}
+
+Status Collection::State::build_approximate_index_if_due() {
+  std::lock_guard build_lock(build_mutex);
+  std::shared_ptr<Generation> generation = current_generation();
+  if (!generation->approximate || !generation->approximate->rebuild_due(generation->index.size())) {
+    return Status::ok();
+  }
+  VectorIndex::Contents copy;
+  {
+    std::shared_lock lock(labels_mutex);  // writers change the indexes only under the exclusive lock
+    copy = generation->index.copy();
+  }
+  return generation->approximate->build(copy);
+}
+
+Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {
+  if (state_->settings.index_kind == IndexKind::exhaustive) return;
+  State* shared = state_.get();
+  state_->builder = std::thread([shared] {
+    std::unique_lock lock(shared->builder_mutex);
+    while (!shared->builder_stop) {
+      lock.unlock();
+      (void)shared->build_approximate_index_if_due();  // a failed build is retried on the next wake
+      lock.lock();
+      shared->builder_wake.wait_for(lock, std::chrono::seconds(1));
+    }
+  });
+}
+
+Collection::~Collection() {
+  if (!state_->builder.joinable()) return;
+  {
+    std::lock_guard lock(state_->builder_mutex);
+    state_->builder_stop = true;
+  }
+  state_->builder_wake.notify_all();
+  state_->builder.join();  // waits for a build in progress to finish
+}
+
+Status Collection::build_approximate_index_now() { return state_->build_approximate_index_if_due(); }
 
 CollectionSettings Collection::settings() const {
   std::shared_lock lock(state_->labels_mutex);
@@ -223,7 +285,7 @@ std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings,
   auto state = std::make_unique<Collection::State>();
   state->settings = settings;
   state->database = std::move(db);
-  state->current = std::make_shared<Generation>(settings.landmarks);
+  state->current = std::make_shared<Generation>(settings.landmarks, settings.index_kind, settings.approximate);
   return state;
 }
 
@@ -288,10 +350,11 @@ Result<std::unique_ptr<Collection>> Collection::create(const std::string& direct
   fs::rename(building, directory, error);
   if (error) return Status(StatusCode::io_error, "cannot move the new collection into '" + directory + "': " + error.message());
   if (Status s = sync_parent_directory(directory); !s.is_ok()) return s;
-  return open(directory);
+  return open(directory, settings.approximate);
 }
 
-Result<std::unique_ptr<Collection>> Collection::open(const std::string& directory) {
+Result<std::unique_ptr<Collection>> Collection::open(const std::string& directory,
+                                                     const ApproximateIndexSettings& approximate) {
   // RocksDB creates the directory and its log even when asked not to create a database, so
   // look first: opening a wrong path must leave nothing behind.
   std::error_code error;
@@ -307,7 +370,8 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   }
   Result<Manifest> parsed = parse_manifest(manifest);
   if (!parsed) return parsed.status();
-  const CollectionSettings& settings = parsed->settings;
+  CollectionSettings& settings = parsed->settings;
+  settings.approximate = approximate;
   if (parsed->format == kUpgradableFormat) {
     if (Status s = upgrade_from_format_2(**db, settings); !s.is_ok()) return s;
   }
@@ -373,7 +437,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   sketches.reset();
   state->database->ReleaseSnapshot(snapshot);
   if (!failure.is_ok()) return failure;
-  if (Status s = generation.index.add(labels, vectors); !s.is_ok()) return s;
+  if (Status s = generation.add(labels, vectors); !s.is_ok()) return s;
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 
@@ -454,11 +518,11 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
 
   // Durable: now make it searchable.
   std::unique_lock lock(state.labels_mutex);
-  if (Status s = current.index.remove(old_labels); !s.is_ok()) return s;
-  if (Status s = current.index.add(new_labels, index_vectors); !s.is_ok()) return s;
+  if (Status s = current.remove(old_labels); !s.is_ok()) return s;
+  if (Status s = current.add(new_labels, index_vectors); !s.is_ok()) return s;
   if (pending) {
-    if (Status s = pending->index.remove(old_labels); !s.is_ok()) return s;
-    if (Status s = pending->index.add(pending_labels, pending_vectors); !s.is_ok()) return s;
+    if (Status s = pending->remove(old_labels); !s.is_ok()) return s;
+    if (Status s = pending->add(pending_labels, pending_vectors); !s.is_ok()) return s;
   }
   for (std::int64_t old : old_labels) state.id_of_label.erase(old);
   for (std::size_t w = 0; w < winners.size(); ++w) {
@@ -467,6 +531,8 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     state.id_of_label[new_labels[w]] = id;
   }
   state.next_label = next_label;
+  lock.unlock();
+  state.builder_wake.notify_one();  // an approximate index may be due
   return Status::ok();
 }
 
@@ -494,14 +560,16 @@ Status Collection::remove(std::span<const std::string> ids) {
   write.Put(kLastWriteKey, now_as_record());
   if (Status s = from_rocksdb(state.database->Write(durable(), &write), "deleting"); !s.is_ok()) return s;
   std::unique_lock lock(state.labels_mutex);
-  if (Status s = current.index.remove(labels); !s.is_ok()) return s;
+  if (Status s = current.remove(labels); !s.is_ok()) return s;
   if (pending) {
-    if (Status s = pending->index.remove(labels); !s.is_ok()) return s;
+    if (Status s = pending->remove(labels); !s.is_ok()) return s;
   }
   for (std::size_t i = 0; i < labels.size(); ++i) {
     state.id_of_label.erase(labels[i]);
     state.label_of_id.erase(removed[i]);
   }
+  lock.unlock();
+  state.builder_wake.notify_one();  // tombstones may make a rebuild due
   return Status::ok();
 }
 
@@ -529,7 +597,10 @@ CollectionStatistics Collection::statistics() const {
     std::size_t id_bytes = 0;
     for (const auto& [id, label] : state_->label_of_id) id_bytes += id.size();
     // Two hash maps (id ↔ label): key, value and about two pointers of node and bucket each.
-    statistics.index_bytes = state_->current->index.memory_bytes() + 2 * id_bytes +
+    const Generation& generation = *state_->current;
+    if (generation.approximate) statistics.approximate = generation.approximate->status();
+    statistics.index_bytes = generation.index.memory_bytes() +
+                             (generation.approximate ? generation.approximate->memory_bytes() : 0) + 2 * id_bytes +
                              statistics.shape_count * 2 * (sizeof(std::string) + sizeof(std::int64_t) + 4 * sizeof(void*));
   }
   std::uint64_t sst = 0, memtables = 0;

@@ -34,6 +34,7 @@
 #include <string>
 #include <vector>
 
+#include "index/approximate_index.h"
 #include "sketch/geometry/shape.h"
 #include "sketch/landmarks/landmark_set.h"
 #include "sketch/status.h"
@@ -51,6 +52,12 @@ struct CollectionSettings {
   std::size_t max_id_bytes = 256;
   std::size_t max_metadata_bytes = 16 * 1024;
   Metric default_metric = Metric::hausdorff;  // for callers that name none (the server)
+  // exhaustive: every query walks the L∞ index. graph / partitioned: fast-mode queries take
+  // their candidates from an approximate index (index/approximate_index.h) once the collection
+  // has ApproximateIndexSettings::minimum_size shapes; exact mode and range queries still walk
+  // the exhaustive index.
+  IndexKind index_kind = IndexKind::exhaustive;
+  ApproximateIndexSettings approximate;  // not persisted: the defaults, or what the opener sets
 };
 
 struct ShapeRecord {
@@ -123,6 +130,7 @@ struct RefitProgress {
 
 struct CollectionStatistics {
   std::size_t shape_count = 0;
+  ApproximateIndexStatus approximate;  // all zero for exhaustive collections
   std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
   std::size_t store_bytes = 0;          // RocksDB files on disk and memtables (estimate)
   std::int64_t last_write_unix_ms = 0;  // 0 when nothing was ever written
@@ -135,7 +143,8 @@ class Collection {
   static Result<std::unique_ptr<Collection>> create(const std::string& directory, const CollectionSettings& settings);
   // Opens an existing collection and rebuilds its vector index from the stored sketches.
   // not_found when the directory holds no collection (nothing is created then).
-  static Result<std::unique_ptr<Collection>> open(const std::string& directory);
+  static Result<std::unique_ptr<Collection>> open(const std::string& directory,
+                                                  const ApproximateIndexSettings& approximate = {});
   ~Collection();
 
   // A copy: a refit changes settings().landmarks (a new generation).
@@ -166,6 +175,10 @@ class Collection {
   Result<QueryAnswer> within(const Shape& query, const RangeOptions& options) const;
   // The baseline: exact distance to every stored shape. O(n) exact evaluations.
   Result<QueryAnswer> nearest_by_full_scan(const Shape& query, const QueryOptions& options) const;
+
+  // Graph and partitioned collections build their approximate index on a background thread;
+  // this builds it now if one is due and waits (tests, benchmarks). No-op for exhaustive ones.
+  Status build_approximate_index_now();
 
   // Fits a new landmark generation and re-sketches every stored shape into it, then switches
   // to it in one durable write; returns the new generation number. Blocks for O(n) sketches:

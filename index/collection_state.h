@@ -6,12 +6,14 @@
 #include <rocksdb/write_batch.h>
 
 #include <atomic>
+#include <condition_variable>
 #include <memory>
 #include <mutex>
 #include <optional>
 #include <shared_mutex>
 #include <span>
 #include <string>
+#include <thread>
 #include <unordered_map>
 #include <vector>
 
@@ -26,11 +28,14 @@ namespace waymark {
 // takes one shared_ptr<Generation> at its start and uses only it, so it never compares
 // sketches of two generations, even while a refit switches generations under it.
 struct Generation {
-  explicit Generation(const LandmarkSet& landmarks)
-      : sketcher(landmarks), index(landmarks.size()) {}
+  Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings);
   std::uint64_t number() const { return sketcher.landmarks().generation; }
+  // Every change goes to both indexes (writers hold the collection's labels_mutex exclusively).
+  Status add(std::span<const std::int64_t> labels, std::span<const float> raw_vectors);
+  Status remove(std::span<const std::int64_t> labels);
   Sketcher sketcher;
   VectorIndex index;  // internally locked: add/remove while queries search
+  std::unique_ptr<ApproximateIndex> approximate;  // graph and partitioned collections only
 };
 
 // One stored shape as decoded from its record and its sketch of one generation.
@@ -61,6 +66,15 @@ struct Collection::State {
   std::shared_ptr<Generation> pending;
   std::string pending_covered_up_to;
   std::mutex refit_mutex;  // one refit at a time
+
+  // Graph and partitioned collections: a thread that builds the current generation's
+  // approximate index whenever one is due; woken by writes.
+  std::thread builder;
+  std::mutex builder_mutex;
+  std::condition_variable builder_wake;
+  bool builder_stop = false;  // guarded by builder_mutex
+  std::mutex build_mutex;     // one build at a time (the thread, or build_approximate_index_now)
+  Status build_approximate_index_if_due();
 
   std::shared_ptr<Generation> current_generation() const {
     std::shared_lock lock(labels_mutex);

@@ -149,6 +149,31 @@ class MetadataFilter {
   nlohmann::json required_ = nlohmann::json::object();
 };
 
+// The stored shape under `label`, framed, when it is still stored under that label and passes
+// the filter; nullopt when it was removed or replaced since the index was searched (also how
+// an approximate index's tombstones are skipped) or filtered out.
+Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state, const PreparedQuery& query,
+                                                  std::int64_t label, const MetadataFilter& filter, QueryStats& stats) {
+  std::string id;
+  {
+    std::shared_lock lock(state.labels_mutex);
+    auto found = state.id_of_label.find(label);
+    if (found == state.id_of_label.end()) return std::optional<StoredShape>();
+    id = found->second;
+  }
+  Result<StoredShape> candidate = state.load(id, *query.generation, label);
+  if (!candidate) {
+    if (candidate.status().code() == StatusCode::not_found) return std::optional<StoredShape>();
+    return candidate.status();
+  }
+  ++stats.candidates_fetched;
+  if (!filter.accepts(candidate->metadata)) {
+    ++stats.filtered_out;
+    return std::optional<StoredShape>();
+  }
+  return std::optional<StoredShape>(std::move(*candidate));
+}
+
 // Walks the exhaustive index in lower-bound order, in rounds that grow ×4 from `first_fetch`,
 // handing each stored candidate (not excluded, passing the filter) to `visit`. After each
 // round `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower bound on
@@ -167,24 +192,9 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
     drawn += round.size();
     for (const Neighbour& n : round) {
       if (n.label == excluded_label) continue;
-      std::string id;
-      {
-        std::shared_lock lock(state.labels_mutex);
-        auto found = state.id_of_label.find(n.label);
-        if (found == state.id_of_label.end()) continue;  // removed since the scan began
-        id = found->second;
-      }
-      Result<StoredShape> candidate = state.load(id, *query.generation, n.label);
-      if (!candidate) {
-        if (candidate.status().code() == StatusCode::not_found) continue;  // removed or replaced since
-        return candidate.status();
-      }
-      ++stats.candidates_fetched;
-      if (!filter.accepts(candidate->metadata)) {
-        ++stats.filtered_out;
-        continue;
-      }
-      if (!visit(*candidate)) return false;
+      Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, filter, stats);
+      if (!candidate) return candidate.status();
+      if (*candidate && !visit(**candidate)) return false;
     }
     if (scan->exhausted()) return true;  // every stored shape was drawn
     // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
@@ -220,6 +230,21 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
                                                           : 20 * options.k;
   QueryAnswer answer;
   TopHits top(options.k);
+  const ApproximateIndex* approximate = query.generation->approximate.get();
+  if (!options.exact && approximate && approximate->ready()) {
+    // Fast mode on a graph or partitioned collection: the approximate index's candidates,
+    // scored exactly; their order is approximate, so the answer is not certified.
+    Result<std::vector<Neighbour>> candidates = approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0));
+    if (!candidates) return candidates.status();
+    for (const Neighbour& n : *candidates) {
+      if (n.label == excluded_label) continue;
+      Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, *filter, answer.stats);
+      if (!candidate) return candidate.status();
+      if (*candidate) score(query, **candidate, options.metric, top, answer.stats);
+    }
+    answer.hits = top.take();
+    return answer;
+  }
   // Fast and exact mode walk alike and stop once certified; they differ only in the budget.
   // Metric::sketch has no exact distance to certify against: it stops only at the budget.
   Result<bool> complete = walk_candidates(

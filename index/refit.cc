@@ -67,7 +67,8 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
   const std::shared_ptr<Generation> current = state.current_generation();
   Result<LandmarkSet> fitted = fit_next_generation(state, current->sketcher.landmarks(), options);
   if (!fitted) return fitted.status();
-  auto next = std::make_shared<Generation>(*fitted);
+  const CollectionSettings settings_now = settings();
+  auto next = std::make_shared<Generation>(*fitted, settings_now.index_kind, settings_now.approximate);
   const std::uint64_t number = next->number();
 
   // Abandoning before the switch: forget the next generation and delete what was written of
@@ -125,7 +126,7 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
         !s.is_ok()) {
       return s;
     }
-    if (Status s = next->index.add(labels, vectors); !s.is_ok()) return s;
+    if (Status s = next->add(labels, vectors); !s.is_ok()) return s;
     state.pending_covered_up_to = last_key;
     after = last_key;
     return labels.size();

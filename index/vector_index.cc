@@ -55,6 +55,11 @@ std::size_t VectorIndex::size() const {
   return labels_.size();
 }
 
+VectorIndex::Contents VectorIndex::copy() const {
+  std::shared_lock lock(mutex_);
+  return {labels_, vectors_};
+}
+
 std::size_t VectorIndex::memory_bytes() const {
   std::shared_lock lock(mutex_);
   // Vectors and labels, plus the hash map's node (key, value, next pointer) and bucket.

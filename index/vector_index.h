@@ -40,6 +40,11 @@ class VectorIndex {
 
   std::size_t dimension() const { return dimension_; }
   std::size_t size() const;
+  struct Contents {
+    std::vector<std::int64_t> labels;
+    std::vector<float> vectors;  // labels.size() × dimension
+  };
+  Contents copy() const;  // every stored vector, for building other indexes from
   // Memory held by the vectors, their labels and the label map, in bytes (estimate).
   std::size_t memory_bytes() const;
 

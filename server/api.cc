@@ -212,6 +212,17 @@ std::string iso_time(std::int64_t unix_ms) {
   return text;
 }
 
+// null for exhaustive collections.
+Json approximate_json(IndexKind kind, const ApproximateIndexStatus& status) {
+  if (kind == IndexKind::exhaustive) return nullptr;
+  return {{"built", status.built},
+          {"built_size", status.built_size},
+          {"fresh", status.fresh},
+          {"tombstones", status.tombstones},
+          {"builds", status.builds},
+          {"last_build_seconds", status.last_build_seconds}};
+}
+
 Json describe(const std::string& name, const Collection& collection) {
   const CollectionSettings& settings = collection.settings();
   const CollectionStatistics statistics = collection.statistics();
@@ -220,7 +231,7 @@ Json describe(const std::string& name, const Collection& collection) {
   std::snprintf(checksum, sizeof checksum, "%016llx", static_cast<unsigned long long>(settings.landmarks.checksum()));
   return {{"name", name},
           {"frame", frame_name(settings.frame)},
-          {"index", "exhaustive"},
+          {"index", index_kind_name(settings.index_kind)},
           {"default_metric", metric_name(settings.default_metric)},
           {"landmarks",
            {{"layout", landmark_layout_name(settings.landmarks.layout)},
@@ -237,7 +248,8 @@ Json describe(const std::string& name, const Collection& collection) {
            {{"shapes", statistics.shape_count},
             {"index_bytes", statistics.index_bytes},
             {"store_bytes", statistics.store_bytes},
-            {"last_write", statistics.last_write_unix_ms == 0 ? Json(nullptr) : Json(iso_time(statistics.last_write_unix_ms))}}}};
+            {"last_write", statistics.last_write_unix_ms == 0 ? Json(nullptr) : Json(iso_time(statistics.last_write_unix_ms))},
+            {"approximate_index", approximate_json(settings.index_kind, statistics.approximate)}}}};
 }
 
 Result<CollectionSettings> settings_from(const Json& body, const ServerConfig& config) {
@@ -255,10 +267,9 @@ Result<CollectionSettings> settings_from(const Json& body, const ServerConfig& c
 
   Result<std::string> index = string_field(body, "index", "exhaustive");
   if (!index) return index.status();
-  if (*index == "graph" || *index == "partitioned") {
-    return Status(StatusCode::failed_precondition, "index kind '" + *index + "' is not available in this build yet (only exhaustive)", "index");
-  }
-  if (*index != "exhaustive") return invalid_argument("index must be exhaustive, graph or partitioned", "index");
+  Result<IndexKind> kind = parse_index_kind(*index);
+  if (!kind) return kind.status();
+  settings.index_kind = *kind;
 
   Result<std::string> metric = string_field(body, "default_metric", "hausdorff");
   if (!metric) return metric.status();

@@ -31,6 +31,8 @@ const Json& defaults() {
       {"idle_timeout_ms", 60000},
       {"shutdown_timeout_ms", 20000},
       {"slow_query_ms", 250},
+      {"approximate_index_minimum_size", 2000},
+      {"approximate_index_rebuild_percent", 10},
       {"read_tokens", Json::array()},
       {"write_tokens", Json::array()},
       {"reads_require_token", false},
@@ -119,6 +121,12 @@ Result<ServerConfig> to_config(const Json& merged) {
   config.idle_timeout_ms = size("idle_timeout_ms");
   config.shutdown_timeout_ms = size("shutdown_timeout_ms");
   config.slow_query_ms = size("slow_query_ms");
+  config.approximate_index_minimum_size = size("approximate_index_minimum_size");
+  config.approximate_index_rebuild_percent = size("approximate_index_rebuild_percent");
+  if (config.approximate_index_rebuild_percent == 0 || config.approximate_index_rebuild_percent > 1000) {
+    return invalid_argument("approximate_index_rebuild_percent must be between 1 and 1000",
+                            "approximate_index_rebuild_percent");
+  }
   config.read_tokens = merged.at("read_tokens").get<std::vector<std::string>>();
   config.write_tokens = merged.at("write_tokens").get<std::vector<std::string>>();
   config.reads_require_token = merged.at("reads_require_token").get<bool>();

@@ -40,6 +40,8 @@ struct ServerConfig {
   std::size_t idle_timeout_ms = 0;         // a kept-alive connection with no request
   std::size_t shutdown_timeout_ms = 0;     // SIGTERM: how long in-flight requests may take
   std::size_t slow_query_ms = 0;           // queries slower than this get a log line
+  std::size_t approximate_index_minimum_size = 0;    // graph/partitioned: build from this many shapes
+  std::size_t approximate_index_rebuild_percent = 0; // rebuild when changes pass this % of the built size
 
   std::vector<std::string> read_tokens;
   std::vector<std::string> write_tokens;  // also allowed to read

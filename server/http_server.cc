@@ -1,5 +1,6 @@
 #include "server/http_server.h"
 
+#include <algorithm>
 #include <spdlog/spdlog.h>
 
 #include <atomic>
@@ -59,7 +60,9 @@ class Session : public std::enable_shared_from_this<Session<Stream>> {
   void read_header(bool kept_alive) {
     parser_.emplace();
     parser_->header_limit(kHeaderLimit);
-    parser_->body_limit(shared_.config.max_body_bytes);
+    // Beast checks a Content-Length against the body limit while parsing the header, before the
+    // route is known: allow the larger (bulk) limit here and apply the route's in on_header.
+    parser_->body_limit(std::max(shared_.config.max_body_bytes, shared_.config.max_bulk_body_bytes));
     const std::size_t timeout = kept_alive ? shared_.config.idle_timeout_ms : shared_.config.read_timeout_ms;
     beast::get_lowest_layer(stream_).expires_after(std::chrono::milliseconds(timeout));
     http::async_read_header(stream_, buffer_, *parser_,
@@ -73,7 +76,11 @@ class Session : public std::enable_shared_from_this<Session<Stream>> {
     started_ = Clock::now();
     const auto& header = parser_->get();
     route_ = shared_.api.classify(std::string(header.method_string()), std::string(header.target()));
-    if (route_.is_bulk) parser_->body_limit(shared_.config.max_bulk_body_bytes);
+    const std::size_t limit = route_.is_bulk ? shared_.config.max_bulk_body_bytes : shared_.config.max_body_bytes;
+    if (const auto length = parser_->content_length(); length && *length > limit) {
+      return fail_read(http::error::body_limit);  // declared too large: refused before reading it
+    }
+    parser_->body_limit(limit);  // chunked bodies are checked as they arrive
     beast::get_lowest_layer(stream_).expires_after(std::chrono::milliseconds(shared_.config.read_timeout_ms));
     http::async_read(stream_, buffer_, *parser_, [self = this->shared_from_this()](beast::error_code e, std::size_t) {
       self->on_body(e);

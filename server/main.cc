@@ -79,7 +79,10 @@ int main(int argc, char** argv) {
   server.run([&] {
     opener = std::thread([&] {
       const auto start = std::chrono::steady_clock::now();
-      Result<std::unique_ptr<Catalog>> catalog = Catalog::open(config->data_directory);
+      ApproximateIndexSettings approximate;
+      approximate.minimum_size = config->approximate_index_minimum_size;
+      approximate.rebuild_fraction = static_cast<double>(config->approximate_index_rebuild_percent) / 100;
+      Result<std::unique_ptr<Catalog>> catalog = Catalog::open(config->data_directory, approximate);
       if (!catalog) {
         spdlog::critical("cannot open the data directory '{}': {}", config->data_directory,
                          catalog.status().to_string());

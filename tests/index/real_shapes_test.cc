@@ -22,12 +22,14 @@ struct GlyphCheck {
 
 // Fast-mode recall@10 against the full scan, and exact mode's agreement with it, over every
 // 13th glyph as a query.
-GlyphCheck check_glyphs(Metric metric) {
+GlyphCheck check_glyphs(Metric metric, IndexKind kind) {
   const std::filesystem::path directory =
       std::filesystem::temp_directory_path() / ("waymark-glyphs-" + std::to_string(::getpid()));
   std::filesystem::remove_all(directory);
   CollectionSettings settings;
   settings.landmarks = *grid_landmarks(unit_frame_domain(), 64);
+  settings.index_kind = kind;
+  settings.approximate.minimum_size = 100;
   Result<std::unique_ptr<Collection>> collection = Collection::create(directory.string(), settings);
   REQUIRE(collection.is_ok());
   std::vector<ShapeRecord> records;
@@ -39,6 +41,7 @@ GlyphCheck check_glyphs(Metric metric) {
   }
   REQUIRE(records.size() == 11 * 52);
   REQUIRE((*collection)->upsert(records).is_ok());
+  REQUIRE((*collection)->build_approximate_index_now().is_ok());
   GlyphCheck check;
   testing::RecallCount recall_count;
   for (std::size_t q = 0; q < records.size(); q += 13) {
@@ -64,9 +67,10 @@ GlyphCheck check_glyphs(Metric metric) {
 
 // The targets, for either metric: recall@10 ≥ 0.95, and exact mode identical to the full scan
 // and certified on every query.
-void require_targets(Metric metric, const char* description) {
-  const GlyphCheck check = check_glyphs(metric);
-  WARN(description << ": " << metric_name(metric) << " fast-mode recall@10 = " << check.recall);
+void require_targets(Metric metric, const char* description, IndexKind kind = IndexKind::exhaustive) {
+  const GlyphCheck check = check_glyphs(metric, kind);
+  WARN(description << ", " << index_kind_name(kind) << " index: " << metric_name(metric)
+                   << " fast-mode recall@10 = " << check.recall);
   CHECK(check.recall >= 0.95);
   CHECK(check.exact_mismatches == 0);
   CHECK(check.uncertified == 0);
@@ -80,4 +84,11 @@ TEST_CASE("HersheyGlyphsHausdorffRecallAndExactness") {
 
 TEST_CASE("HersheyGlyphsFrechetRecallAndExactness") {
   require_targets(Metric::frechet, "Hershey glyphs (longest stroke), 572 shapes");
+}
+
+TEST_CASE("HersheyGlyphsRecallWithGraphAndPartitionedIndexes") {
+  for (IndexKind kind : {IndexKind::graph, IndexKind::partitioned}) {
+    require_targets(Metric::hausdorff, "Hershey glyphs, 572 shapes", kind);
+    require_targets(Metric::frechet, "Hershey glyphs (longest stroke), 572 shapes", kind);
+  }
 }

@@ -149,8 +149,10 @@ def main():
     directory = tempfile.mkdtemp(prefix="waymarkd-test-")
     data = os.path.join(directory, "data")
     try:
-        server = Server(data, "--max-body-bytes", "65536", "--read-timeout-ms", "1500", "--bulk-batch-size", "100")
+        server = Server(data, "--max-body-bytes", "65536", "--read-timeout-ms", "1500", "--bulk-batch-size", "100",
+                        "--approximate-index-minimum-size", "200")
         run_api_checks(server, directory)
+        run_approximate_index_checks(server)
         run_refit_checks(server)
         before = shapes_snapshot(server, "parts")
         query = {"shape": "LINESTRING (0 0, 10 2, 20 -1, 30 0)", "k": 5, "mode": "exact"}
@@ -199,6 +201,41 @@ def check_exact_against_brute_force(server, label):
         got = [(round(r["distance"], 9), r["id"]) for r in answer["results"]]
         check(got == expected, f"{label}exact {metric} equals brute force: {got} vs {expected}")
         check(answer["stats"]["exact_evaluations"] < len(stored), f"{label}exact {metric}: the bounds pruned")
+
+
+def run_approximate_index_checks(server):
+    """A graph collection: its approximate index is built in the background (the server runs
+    with --approximate-index-minimum-size 200), fast answers come from it uncertified, exact
+    answers stay certified, and a bad index kind is refused."""
+    expect_error(server, "PUT", "/v1/collections/bogus", {"index": "tree"}, 400, "invalid_argument", where="index",
+                 label="unknown index kind")
+    for kind in ["graph", "partitioned"]:
+        name = "drawings-" + kind
+        status, created = server.call("PUT", f"/v1/collections/{name}", {"index": kind, "landmarks": {"count": 32}},
+                                      token=WRITE)
+        check(status == 201 and created["index"] == kind and created["stats"]["approximate_index"]["built"] is False,
+              f"create {kind}: {status} {created}")
+        body = "\n".join(json.dumps(entry) for entry in catalogue(400, seed=11)) + "\n"
+        status, reply = server.call("POST", f"/v1/collections/{name}/shapes", raw=body, token=WRITE)
+        check(status == 200 and reply["accepted"] == 400, f"{kind}: bulk {status} {reply}")
+        deadline = time.time() + 60
+        while time.time() < deadline:
+            status, described = server.call("GET", f"/v1/collections/{name}")
+            # Built at 200 shapes (bulk batches of 100), then rebuilt once the fresh ones pass 10%.
+            if described["stats"]["approximate_index"]["built_size"] == 400:
+                break
+            time.sleep(0.05)
+        approximate = described["stats"]["approximate_index"]
+        check(approximate["built"] and approximate["built_size"] == 400 and approximate["fresh"] == 0,
+              f"{kind}: built in the background: {approximate}")
+        query = {"id": "P-0007", "k": 5}
+        status, fast = server.call("POST", f"/v1/collections/{name}/nearest", query)
+        status_exact, exact = server.call("POST", f"/v1/collections/{name}/nearest", dict(query, mode="exact"))
+        check(status == 200 and not fast["certified"] and len(fast["results"]) == 5, f"{kind}: fast answer {fast}")
+        check(status_exact == 200 and exact["certified"] and len(exact["results"]) == 5, f"{kind}: exact answer {exact}")
+        check(fast["results"][0]["id"] == exact["results"][0]["id"], f"{kind}: fast and exact agree on the nearest")
+        status, _ = server.call("DELETE", f"/v1/collections/{name}", token=WRITE)
+        check(status == 200, f"{kind}: drop")
 
 
 def run_refit_checks(server):

@@ -1,0 +1,100 @@
+// The approximate vector index of a graph or partitioned collection: FAISS's HNSW graph
+// (IndexHNSWFlat) or inverted lists (IndexIVFFlat, k-means partitions) over the weighted
+// sketches under L2, for fast-mode candidates on large collections. (Exact mode and range
+// queries always walk the exhaustive L∞ index, index/vector_index.h, which every collection
+// keeps: only that walk can certify an answer.)
+//
+// Built in the background from a copy of the exhaustive index (build()), then swapped in
+// whole. Writes never wait for a graph insertion: vectors added since the copy sit in a small
+// exhaustive "fresh" index searched beside the built one, so they are found at once; removed
+// labels stay in the built index as tombstones that the query planner skips (it finds no
+// shape under them). A rebuild is due when fresh vectors and tombstones together pass a
+// fraction of the built size (also how IVF is retrained as the collection grows).
+//
+// Candidates are in approximate L2 order, so answers drawn from here are never certified.
+// Thread safety: every member may be called concurrently; build() runs outside any lock and
+// takes the exclusive lock only to swap.
+#pragma once
+
+#include <atomic>
+#include <cstdint>
+#include <memory>
+#include <shared_mutex>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "index/vector_index.h"
+#include "sketch/status.h"
+
+namespace faiss {
+struct Index;
+}
+
+namespace waymark {
+
+enum class IndexKind { exhaustive, graph, partitioned };
+const char* index_kind_name(IndexKind kind);
+Result<IndexKind> parse_index_kind(const std::string& name);
+
+struct ApproximateIndexSettings {
+  std::size_t minimum_size = 2000;     // below this, fast mode walks the exhaustive index
+  double rebuild_fraction = 0.10;      // fresh + tombstones past this share of the built size
+  std::size_t graph_neighbours = 32;   // HNSW M
+  std::size_t graph_build_effort = 40; // HNSW efConstruction
+};
+
+struct ApproximateIndexStatus {
+  bool built = false;
+  std::size_t built_size = 0;   // vectors in the built index, tombstones included
+  std::size_t fresh = 0;        // added since the build's copy, searched exhaustively
+  std::size_t tombstones = 0;   // removed since the build's copy
+  std::size_t builds = 0;
+  double last_build_seconds = 0;
+};
+
+class ApproximateIndex {
+ public:
+  // kind is graph or partitioned; root_weights has one entry per dimension (sqrt(w_i)).
+  ApproximateIndex(IndexKind kind, std::vector<double> root_weights, ApproximateIndexSettings settings = {});
+  ~ApproximateIndex();
+  ApproximateIndex(const ApproximateIndex&) = delete;
+  ApproximateIndex& operator=(const ApproximateIndex&) = delete;
+
+  IndexKind kind() const { return kind_; }
+  // Writers report every change they make to the exhaustive index (raw, unweighted vectors).
+  Status added(std::span<const std::int64_t> labels, std::span<const float> raw_vectors);
+  void removed(std::span<const std::int64_t> labels);
+
+  bool ready() const;          // a built index exists
+  bool rebuild_due(std::size_t stored) const;
+  // Builds the FAISS index from a copy of the exhaustive index (VectorIndex::copy(), taken by
+  // the caller while no writer changes it) and swaps it in; fresh vectors that the copy holds
+  // leave the fresh index. O(n log n) for the graph, O(n · partitions) for IVF: seconds to
+  // minutes, with no lock held until the swap.
+  Status build(const VectorIndex::Contents& copy);
+
+  // Up to `count` candidates from the built index (approximate L2 order) followed by up to
+  // `count` from the fresh index (L∞ order). failed_precondition when nothing is built.
+  Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count) const;
+
+  ApproximateIndexStatus status() const;
+  std::size_t memory_bytes() const;
+
+ private:
+  std::vector<float> weighted(std::span<const float> raw) const;
+
+  IndexKind kind_;
+  std::vector<double> root_weights_;
+  ApproximateIndexSettings settings_;
+  mutable std::shared_mutex mutex_;
+  std::unique_ptr<faiss::Index> built_;        // guarded by mutex_
+  std::vector<std::int64_t> label_of_row_;     // FAISS's sequential ids → labels
+  std::size_t partitions_ = 0;
+  VectorIndex fresh_;                          // internally locked
+  std::atomic<std::size_t> tombstones_{0};
+  std::atomic<std::size_t> builds_{0};
+  std::atomic<double> last_build_seconds_{0};
+};
+
+}  // namespace waymark

@@ -1,0 +1,155 @@
+// Graph (HNSW) and partitioned (IVF) collections: fast-mode recall against the full scan,
+// exact mode unchanged, fresh writes found before any rebuild, deleted shapes never returned,
+// rebuilds when due, the background builder, and the kind surviving a restart.
+#include <catch2/catch.hpp>
+#include <chrono>
+#include <thread>
+
+#include "index/collection.h"
+#include "support/collection_helpers.h"
+#include "support/recall.h"
+
+using namespace waymark;
+using namespace waymark::testing;
+
+namespace {
+
+CollectionSettings approximate_settings(IndexKind kind) {
+  CollectionSettings settings = settings_with(32);
+  settings.index_kind = kind;
+  settings.approximate.minimum_size = 500;
+  return settings;
+}
+
+double fast_recall(const Collection& collection, const std::vector<ShapeRecord>& records, Metric metric,
+                   std::uint64_t seed) {
+  SeededRandom random(seed);
+  RecallCount recall;
+  for (int q = 0; q < 25; ++q) {
+    Shape query = records[random.below(records.size())].shape;
+    for (Point& p : query.parts[0]) p.x += 0.05 * random.uniform();
+    QueryOptions options;
+    options.metric = metric;
+    Result<QueryAnswer> fast = collection.nearest(query, options);
+    Result<QueryAnswer> scan = collection.nearest_by_full_scan(query, options);
+    REQUIRE((fast.is_ok() && scan.is_ok()));
+    CHECK_FALSE(fast->certified);  // approximate candidates are never certified
+    recall.add(*scan, *fast);
+  }
+  return recall.recall();
+}
+
+}  // namespace
+
+TEST_CASE("ApproximateKindsFindTheNearestShapesAndStayExactInExactMode") {
+  for (IndexKind kind : {IndexKind::graph, IndexKind::partitioned}) {
+    INFO(index_kind_name(kind));
+    TemporaryDirectory directory;
+    const std::vector<ShapeRecord> records = synthetic_records(3000, 61);
+    Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, approximate_settings(kind));
+    REQUIRE(created.is_ok());
+    Collection& collection = **created;
+    REQUIRE(collection.upsert(records).is_ok());
+    REQUIRE(collection.build_approximate_index_now().is_ok());
+    const ApproximateIndexStatus status = collection.statistics().approximate;
+    CHECK(status.built);
+    CHECK(status.built_size == 3000);
+    CHECK(status.fresh == 0);
+
+    const double hausdorff_recall = fast_recall(collection, records, Metric::hausdorff, 62);
+    const double frechet_recall = fast_recall(collection, records, Metric::frechet, 63);
+    WARN(index_kind_name(kind) << ": fast-mode recall@10 on 3000 synthetic shapes, 32 landmarks: Hausdorff "
+                               << hausdorff_recall << ", Fréchet " << frechet_recall);
+    CHECK(hausdorff_recall >= 0.95);
+    CHECK(frechet_recall >= 0.95);
+
+    // Exact mode ignores the approximate index: certified and equal to the full scan.
+    SeededRandom random(64);
+    for (int q = 0; q < 4; ++q) {
+      QueryOptions options;
+      options.exact = true;
+      const Shape query = records[random.below(records.size())].shape;
+      Result<QueryAnswer> exact = collection.nearest(query, options);
+      Result<QueryAnswer> scan = collection.nearest_by_full_scan(query, options);
+      REQUIRE((exact.is_ok() && scan.is_ok()));
+      CHECK(exact->certified);
+      require_same(*exact, *scan);
+    }
+  }
+}
+
+TEST_CASE("ApproximateKindsSeeFreshWritesAtOnceAndNeverReturnDeletedShapes") {
+  for (IndexKind kind : {IndexKind::graph, IndexKind::partitioned}) {
+    INFO(index_kind_name(kind));
+    TemporaryDirectory directory;
+    CollectionSettings settings = approximate_settings(kind);
+    settings.approximate.rebuild_fraction = 0.05;
+    const std::vector<ShapeRecord> records = synthetic_records(2000, 65);
+    Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings);
+    REQUIRE(created.is_ok());
+    Collection& collection = **created;
+    REQUIRE(collection.upsert(std::span(records).first(1500)).is_ok());
+    REQUIRE(collection.build_approximate_index_now().is_ok());
+    REQUIRE(collection.statistics().approximate.built_size == 1500);
+
+    // Written after the build: found by fast mode straight away, each as its own nearest.
+    REQUIRE(collection.upsert(std::span(records).subspan(1500, 50)).is_ok());
+    CHECK(collection.statistics().approximate.fresh == 50);
+    for (std::size_t i = 1500; i < 1550; i += 7) {
+      Result<QueryAnswer> answer = collection.nearest(records[i].shape, QueryOptions{});
+      REQUIRE(answer.is_ok());
+      REQUIRE_FALSE(answer->hits.empty());
+      CHECK(answer->hits[0].id == records[i].id);
+      CHECK(answer->hits[0].distance < 1e-12);  // identical shapes, up to rounding
+    }
+
+    // Deleted: tombstones in the built index, never returned.
+    std::vector<std::string> deleted;
+    for (std::size_t i = 0; i < 60; ++i) deleted.push_back(records[i * 20].id);
+    REQUIRE(collection.remove(deleted).is_ok());
+    CHECK(collection.statistics().approximate.tombstones == 60);
+    for (std::size_t i = 0; i < 60; i += 6) {
+      Result<QueryAnswer> answer = collection.nearest(records[i * 20].shape, QueryOptions{});
+      REQUIRE(answer.is_ok());
+      for (const QueryHit& hit : answer->hits) {
+        CHECK(std::find(deleted.begin(), deleted.end(), hit.id) == deleted.end());
+      }
+    }
+
+    // 110 changes on 1500 built is past 5%: a rebuild takes in the fresh shapes and drops the
+    // tombstones.
+    REQUIRE(collection.build_approximate_index_now().is_ok());
+    const ApproximateIndexStatus rebuilt = collection.statistics().approximate;
+    CHECK(rebuilt.builds == 2);
+    CHECK(rebuilt.built_size == 1550 - 60);
+    CHECK(rebuilt.fresh == 0);
+    CHECK(rebuilt.tombstones == 0);
+  }
+}
+
+TEST_CASE("ApproximateIndexIsBuiltInTheBackgroundAndTheKindSurvivesRestart") {
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(800, 66);
+  {
+    Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, approximate_settings(IndexKind::graph));
+    REQUIRE(created.is_ok());
+    REQUIRE((*created)->upsert(records).is_ok());
+    // No call to build: the collection's own thread builds once 500 shapes are stored.
+    const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(60);
+    while (!(*created)->statistics().approximate.built && std::chrono::steady_clock::now() < deadline) {
+      std::this_thread::sleep_for(std::chrono::milliseconds(20));
+    }
+    CHECK((*created)->statistics().approximate.built);
+  }
+  ApproximateIndexSettings approximate;
+  approximate.minimum_size = 100000;  // the opener's settings: too few shapes to build now
+  Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, approximate);
+  REQUIRE(reopened.is_ok());
+  CHECK((*reopened)->settings().index_kind == IndexKind::graph);
+  CHECK_FALSE((*reopened)->statistics().approximate.built);
+  // Until it is built, fast mode walks the exhaustive index (and can certify).
+  Result<QueryAnswer> answer = (*reopened)->nearest(records[5].shape, QueryOptions{});
+  REQUIRE(answer.is_ok());
+  CHECK(answer->certified);
+  CHECK(answer->hits[0].id == records[5].id);
+}
