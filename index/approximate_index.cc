@@ -3,12 +3,17 @@
 #include <faiss/IndexFlat.h>
 #include <faiss/IndexHNSW.h>
 #include <faiss/IndexIVFFlat.h>
+#include <faiss/impl/io.h>
+#include <faiss/index_io.h>
 
 #include <algorithm>
 #include <chrono>
 #include <cmath>
 #include <mutex>
+#include <cstring>
 #include <unordered_set>
+
+#include "sketch/durable_file.h"
 
 namespace waymark {
 namespace {
@@ -157,9 +162,116 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
   return out;
 }
 
+namespace {
+
+constexpr char kSnapshotMagic[8] = {'W', 'M', 'A', 'P', 'P', 'R', 'X', '1'};
+
+void append_u64(std::string& out, std::uint64_t value) { out.append(reinterpret_cast<const char*>(&value), 8); }
+
+}  // namespace
+
+Result<std::string> ApproximateIndex::snapshot(std::uint64_t generation) const {
+  std::shared_lock lock(mutex_);
+  if (!built_) return Status(StatusCode::failed_precondition, "the approximate index is not built");
+  faiss::VectorIOWriter writer;
+  try {
+    faiss::write_index(built_.get(), &writer);
+  } catch (const std::exception& error) {
+    return from_exception(error);
+  }
+  std::string out(kSnapshotMagic, sizeof kSnapshotMagic);
+  append_u64(out, static_cast<std::uint64_t>(kind_));
+  append_u64(out, generation);
+  append_u64(out, partitions_);
+  append_u64(out, label_of_row_.size());
+  out.append(reinterpret_cast<const char*>(label_of_row_.data()), label_of_row_.size() * sizeof(std::int64_t));
+  append_u64(out, writer.data.size());
+  out.append(reinterpret_cast<const char*>(writer.data.data()), writer.data.size());
+  append_u64(out, fnv1a64(out));
+  return out;
+}
+
+Status ApproximateIndex::restore(std::string_view bytes, std::uint64_t generation, const VectorIndex::Contents& all) {
+  auto damaged = [](const std::string& what) {
+    return Status(StatusCode::data_loss, "approximate index snapshot is damaged: " + what);
+  };
+  std::size_t offset = 0;
+  auto read_u64 = [&](std::uint64_t& value) {
+    if (bytes.size() - offset < 8) return false;
+    std::memcpy(&value, bytes.data() + offset, 8);
+    offset += 8;
+    return true;
+  };
+  if (bytes.size() < sizeof kSnapshotMagic + 8 || std::memcmp(bytes.data(), kSnapshotMagic, sizeof kSnapshotMagic) != 0) {
+    return damaged("not a snapshot (magic)");
+  }
+  std::uint64_t stored_checksum = 0;
+  std::memcpy(&stored_checksum, bytes.data() + bytes.size() - 8, 8);
+  if (fnv1a64(bytes.substr(0, bytes.size() - 8)) != stored_checksum) return damaged("checksum mismatch");
+  bytes.remove_suffix(8);
+  offset = sizeof kSnapshotMagic;
+  std::uint64_t kind = 0, snapshot_generation = 0, partitions = 0, count = 0, faiss_size = 0;
+  if (!read_u64(kind) || !read_u64(snapshot_generation) || !read_u64(partitions) || !read_u64(count)) {
+    return damaged("truncated header");
+  }
+  if (kind != static_cast<std::uint64_t>(kind_) || snapshot_generation != generation) {
+    return Status(StatusCode::failed_precondition, "snapshot is of another index kind or landmark generation");
+  }
+  if (count > (bytes.size() - offset) / sizeof(std::int64_t)) return damaged("label count exceeds the file");
+  std::vector<std::int64_t> labels(count);
+  std::memcpy(labels.data(), bytes.data() + offset, count * sizeof(std::int64_t));
+  offset += count * sizeof(std::int64_t);
+  if (!read_u64(faiss_size) || faiss_size != bytes.size() - offset) return damaged("index length");
+  faiss::VectorIOReader reader;
+  reader.data.assign(bytes.begin() + static_cast<std::ptrdiff_t>(offset), bytes.end());
+  std::unique_ptr<faiss::Index> index;
+  try {
+    index.reset(faiss::read_index(&reader));
+  } catch (const std::exception& error) {
+    return damaged(error.what());
+  }
+  if (static_cast<std::uint64_t>(index->ntotal) != count || static_cast<std::size_t>(index->d) != root_weights_.size()) {
+    return damaged("index size or dimension does not match its labels");
+  }
+  // Catch up with the store: what it holds beyond the snapshot is fresh; what the snapshot
+  // holds beyond the store is a tombstone.
+  const std::unordered_set<std::int64_t> in_snapshot(labels.begin(), labels.end());
+  std::unordered_set<std::int64_t> stored;
+  std::vector<std::int64_t> fresh_labels;
+  std::vector<float> fresh_vectors;
+  const std::size_t dimension = root_weights_.size();
+  for (std::size_t i = 0; i < all.labels.size(); ++i) {
+    stored.insert(all.labels[i]);
+    if (in_snapshot.contains(all.labels[i])) continue;
+    fresh_labels.push_back(all.labels[i]);
+    fresh_vectors.insert(fresh_vectors.end(), all.vectors.begin() + static_cast<std::ptrdiff_t>(i * dimension),
+                         all.vectors.begin() + static_cast<std::ptrdiff_t>((i + 1) * dimension));
+  }
+  std::size_t tombstones = 0;
+  for (std::int64_t label : labels) tombstones += !stored.contains(label);
+  std::unique_lock lock(mutex_);
+  (void)fresh_.remove(fresh_.copy().labels);
+  if (Status s = fresh_.add(fresh_labels, fresh_vectors); !s.is_ok()) return s;
+  built_ = std::move(index);
+  label_of_row_ = std::move(labels);
+  partitions_ = partitions;
+  tombstones_ = tombstones;
+  return Status::ok();
+}
+
+void ApproximateIndex::set_snapshot_note(std::string note) {
+  std::unique_lock lock(mutex_);
+  snapshot_note_ = std::move(note);
+}
+
+std::int64_t ApproximateIndex::largest_label() const {
+  std::shared_lock lock(mutex_);
+  return label_of_row_.empty() ? 0 : *std::max_element(label_of_row_.begin(), label_of_row_.end());
+}
+
 ApproximateIndexStatus ApproximateIndex::status() const {
   std::shared_lock lock(mutex_);
-  return {built_ != nullptr, label_of_row_.size(), fresh_.size(), tombstones_, builds_, last_build_seconds_};
+  return {built_ != nullptr, snapshot_note_, label_of_row_.size(), fresh_.size(), tombstones_, builds_, last_build_seconds_};
 }
 
 std::size_t ApproximateIndex::memory_bytes() const {

@@ -22,6 +22,7 @@
 #include <shared_mutex>
 #include <span>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "index/vector_index.h"
@@ -46,6 +47,9 @@ struct ApproximateIndexSettings {
 
 struct ApproximateIndexStatus {
   bool built = false;
+  // How the collection's last open got it: "none" (nothing to load), "loaded" (from the
+  // snapshot, then caught up), or "rebuilding: <why the snapshot was not used>".
+  std::string snapshot = "none";
   std::size_t built_size = 0;   // vectors in the built index, tombstones included
   std::size_t fresh = 0;        // added since the build's copy, searched exhaustively
   std::size_t tombstones = 0;   // removed since the build's copy
@@ -78,6 +82,18 @@ class ApproximateIndex {
   // `count` from the fresh index (L∞ order). failed_precondition when nothing is built.
   Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count) const;
 
+  // The built index as a snapshot file's bytes (index/STORE_FORMAT.md, "Approximate index
+  // snapshot"), tagged with `generation`; failed_precondition when nothing is built.
+  Result<std::string> snapshot(std::uint64_t generation) const;
+  // Replaces the built index with a snapshot written for `generation`, then catches up with
+  // `all` (the exhaustive index as stored now): stored vectors the snapshot lacks become
+  // fresh, snapshot vectors no longer stored become tombstones. data_loss for a damaged file,
+  // failed_precondition for one of another kind or generation; nothing changes then.
+  Status restore(std::string_view bytes, std::uint64_t generation, const VectorIndex::Contents& all);
+  // Records how the last open went (ApproximateIndexStatus::snapshot).
+  void set_snapshot_note(std::string note);
+  std::int64_t largest_label() const;  // in the built index; 0 when none
+
   ApproximateIndexStatus status() const;
   std::size_t memory_bytes() const;
 
@@ -95,6 +111,7 @@ class ApproximateIndex {
   std::atomic<std::size_t> tombstones_{0};
   std::atomic<std::size_t> builds_{0};
   std::atomic<double> last_build_seconds_{0};
+  std::string snapshot_note_ = "none";  // guarded by mutex_
 };
 
 }  // namespace waymark

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <cstring>
 #include <filesystem>
+#include <fstream>
 #include <nlohmann/json.hpp>
 
 #include "index/collection_state.h"
@@ -240,8 +241,28 @@ Status Collection::State::build_approximate_index_if_due() {
     std::shared_lock lock(labels_mutex);  // writers change the indexes only under the exclusive lock
     copy = generation->index.copy();
   }
-  return generation->approximate->build(copy);
+  if (Status s = generation->approximate->build(copy); !s.is_ok()) return s;
+  // Saved so that the next open need not rebuild (a graph takes minutes at a million shapes).
+  Result<std::string> bytes = generation->approximate->snapshot(generation->number());
+  if (!bytes) return bytes.status();
+  return write_file_atomically(approximate_snapshot_path(), *bytes);
 }
+
+namespace {
+
+// Loads the approximate index's snapshot into a freshly opened generation, or says why not.
+void restore_approximate_index(Collection::State& state) {
+  Generation& generation = *state.current;
+  std::ifstream in(state.approximate_snapshot_path(), std::ios::binary);
+  if (!in) return;  // none yet: the builder makes one when due
+  const std::string bytes((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
+  const Status restored = generation.approximate->restore(bytes, generation.number(), generation.index.copy());
+  generation.approximate->set_snapshot_note(restored.is_ok() ? "loaded" : "rebuilding: " + restored.message());
+  // Labels are never reused, also not those that only the snapshot still remembers.
+  state.next_label = std::max(state.next_label, generation.approximate->largest_label() + 1);
+}
+
+}  // namespace
 
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {
   if (state_->settings.index_kind == IndexKind::exhaustive) return;
@@ -438,6 +459,8 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   state->database->ReleaseSnapshot(snapshot);
   if (!failure.is_ok()) return failure;
   if (Status s = generation.add(labels, vectors); !s.is_ok()) return s;
+  state->directory = directory;
+  if (generation.approximate) restore_approximate_index(*state);
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 

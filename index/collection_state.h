@@ -50,6 +50,7 @@ struct StoredShape {
 };
 
 struct Collection::State {
+  std::string directory;
   CollectionSettings settings;  // settings.landmarks is the current generation's; guarded by labels_mutex
   std::unique_ptr<rocksdb::DB> database;
 
@@ -74,7 +75,8 @@ struct Collection::State {
   std::condition_variable builder_wake;
   bool builder_stop = false;  // guarded by builder_mutex
   std::mutex build_mutex;     // one build at a time (the thread, or build_approximate_index_now)
-  Status build_approximate_index_if_due();
+  Status build_approximate_index_if_due();  // and writes its snapshot
+  std::string approximate_snapshot_path() const { return directory + "/approximate-index.snapshot"; }
 
   std::shared_ptr<Generation> current_generation() const {
     std::shared_lock lock(labels_mutex);

@@ -51,4 +51,13 @@ Status write_file_atomically(const std::string& path, std::string_view bytes) {
   return sync_parent_directory(path);
 }
 
+std::uint64_t fnv1a64(std::string_view bytes) {
+  std::uint64_t hash = 0xcbf29ce484222325ull;
+  for (unsigned char c : bytes) {
+    hash ^= c;
+    hash *= 0x100000001b3ull;
+  }
+  return hash;
+}
+
 }  // namespace waymark

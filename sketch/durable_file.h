@@ -7,6 +7,7 @@
 // POSIX only.
 #pragma once
 
+#include <cstdint>
 #include <string>
 #include <string_view>
 
@@ -16,5 +17,9 @@ namespace waymark {
 
 Status write_file_atomically(const std::string& path, std::string_view bytes);
 Status sync_parent_directory(const std::string& path);
+
+// FNV-1a (64-bit) of `bytes`: the checksum our own file formats end with. O(n). Detects
+// accidental damage (truncation, flipped bytes), not tampering.
+std::uint64_t fnv1a64(std::string_view bytes);
 
 }  // namespace waymark

@@ -14,15 +14,6 @@ namespace {
 
 constexpr const char* kMagic = "waymark-landmarks 1";
 
-std::uint64_t fnv1a64(const std::string& bytes) {
-  std::uint64_t hash = 0xcbf29ce484222325ull;
-  for (unsigned char c : bytes) {
-    hash ^= c;
-    hash *= 0x100000001b3ull;
-  }
-  return hash;
-}
-
 std::string format_number(double value) {
   char buffer[32];
   std::snprintf(buffer, sizeof buffer, "%.17g", value);

@@ -3,6 +3,7 @@
 // rebuilds when due, the background builder, and the kind surviving a restart.
 #include <catch2/catch.hpp>
 #include <chrono>
+#include <fstream>
 #include <thread>
 
 #include "index/collection.h"
@@ -143,13 +144,103 @@ TEST_CASE("ApproximateIndexIsBuiltInTheBackgroundAndTheKindSurvivesRestart") {
   }
   ApproximateIndexSettings approximate;
   approximate.minimum_size = 100000;  // the opener's settings: too few shapes to build now
+  {
+    // The build's snapshot is loaded: no rebuild after a restart.
+    Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, approximate);
+    REQUIRE(reopened.is_ok());
+    CHECK((*reopened)->settings().index_kind == IndexKind::graph);
+    CHECK((*reopened)->statistics().approximate.snapshot == "loaded");
+    CHECK((*reopened)->statistics().approximate.built);
+  }
+  std::filesystem::remove(directory.path / "approximate-index.snapshot");
   Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, approximate);
   REQUIRE(reopened.is_ok());
-  CHECK((*reopened)->settings().index_kind == IndexKind::graph);
+  CHECK((*reopened)->statistics().approximate.snapshot == "none");
   CHECK_FALSE((*reopened)->statistics().approximate.built);
   // Until it is built, fast mode walks the exhaustive index (and can certify).
   Result<QueryAnswer> answer = (*reopened)->nearest(records[5].shape, QueryOptions{});
   REQUIRE(answer.is_ok());
   CHECK(answer->certified);
   CHECK(answer->hits[0].id == records[5].id);
+}
+
+// The snapshot written after each build is loaded by the next open and caught up with the
+// store (writes since it become fresh, deletions tombstones); a damaged or stale one is
+// reported and the index rebuilt, never trusted.
+TEST_CASE("ApproximateIndexSnapshotIsLoadedCaughtUpAndRebuiltWhenDamaged") {
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(1200, 67);
+  ApproximateIndexSettings manual;
+  manual.minimum_size = 1000000;  // nothing is built unless asked (no background build)
+  {
+    CollectionSettings settings = approximate_settings(IndexKind::graph);
+    settings.approximate.rebuild_fraction = 100;  // one build only, so the snapshot stays behind
+    Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings);
+    REQUIRE(created.is_ok());
+    REQUIRE((*created)->upsert(std::span(records).first(1000)).is_ok());
+    REQUIRE((*created)->build_approximate_index_now().is_ok());
+    REQUIRE((*created)->statistics().approximate.built_size == 1000);
+    // After the snapshot: 200 new shapes and 10 deletions, which the snapshot does not know.
+    REQUIRE((*created)->upsert(std::span(records).subspan(1000, 200)).is_ok());
+    std::vector<std::string> deleted;
+    for (std::size_t i = 0; i < 10; ++i) deleted.push_back(records[i * 50].id);
+    REQUIRE((*created)->remove(deleted).is_ok());
+  }
+  {
+    Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, manual);
+    REQUIRE(reopened.is_ok());
+    const ApproximateIndexStatus status = (*reopened)->statistics().approximate;
+    CHECK(status.snapshot == "loaded");
+    CHECK(status.built);
+    CHECK(status.built_size == 1000);
+    CHECK(status.fresh == 200);
+    CHECK(status.tombstones == 10);
+    Result<QueryAnswer> fresh = (*reopened)->nearest(records[1100].shape, QueryOptions{});
+    REQUIRE(fresh.is_ok());
+    CHECK(fresh->hits[0].id == records[1100].id);
+    Result<QueryAnswer> gone = (*reopened)->nearest(records[50].shape, QueryOptions{});
+    REQUIRE(gone.is_ok());
+    for (const QueryHit& hit : gone->hits) CHECK(hit.id != records[50].id);
+    // A shape written now must not take a label the snapshot still holds for a deleted one.
+    REQUIRE((*reopened)->upsert(std::span(records).subspan(0, 1)).is_ok());
+    Result<QueryAnswer> again = (*reopened)->nearest(records[0].shape, QueryOptions{});
+    REQUIRE(again.is_ok());
+    CHECK(again->hits[0].id == records[0].id);
+  }
+  const std::string snapshot = (directory.path / "approximate-index.snapshot").string();
+  for (const char* damage : {"flip", "truncate"}) {
+    INFO(damage);
+    std::string bytes;
+    {
+      std::ifstream in(snapshot, std::ios::binary);
+      bytes.assign(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+    }
+    REQUIRE(bytes.size() > 100);
+    std::string damaged = bytes;
+    if (std::string(damage) == "flip") {
+      damaged[bytes.size() / 2] ^= 0x40;
+    } else {
+      damaged.resize(bytes.size() / 3);
+    }
+    std::ofstream(snapshot, std::ios::binary | std::ios::trunc) << damaged;
+    Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, manual);
+    REQUIRE(reopened.is_ok());
+    const ApproximateIndexStatus status = (*reopened)->statistics().approximate;
+    CHECK(status.snapshot.starts_with("rebuilding: approximate index snapshot is damaged"));
+    CHECK_FALSE(status.built);
+    Result<QueryAnswer> answer = (*reopened)->nearest(records[700].shape, QueryOptions{});
+    REQUIRE(answer.is_ok());
+    CHECK(answer->hits[0].id == records[700].id);  // the exhaustive walk serves meanwhile
+    std::ofstream(snapshot, std::ios::binary | std::ios::trunc) << bytes;  // undamaged for the next round
+  }
+  {
+    // A refit makes the snapshot stale: another landmark generation.
+    Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, manual);
+    REQUIRE(reopened.is_ok());
+    RefitProgress progress;
+    REQUIRE((*reopened)->refit(RefitOptions{}, progress).is_ok());
+  }
+  Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, manual);
+  REQUIRE(reopened.is_ok());
+  CHECK((*reopened)->statistics().approximate.snapshot.starts_with("rebuilding: snapshot is of another"));
 }

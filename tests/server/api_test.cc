@@ -9,9 +9,11 @@
 #include <sstream>
 
 #include "server/api.h"
+#include "support/collection_helpers.h"
 
 using namespace waymark;
 using namespace waymark::server;
+using waymark::testing::TemporaryDirectory;
 using Json = nlohmann::json;
 
 namespace {
@@ -40,14 +42,6 @@ std::string error_code(const HttpResponse& response) {
   return Json::parse(response.body).at("error").at("code").get<std::string>();
 }
 
-struct TemporaryDirectory {
-  TemporaryDirectory() {
-    path = std::filesystem::temp_directory_path() / ("waymark-api-test-" + std::to_string(::getpid()));
-    std::filesystem::remove_all(path);
-  }
-  ~TemporaryDirectory() { std::filesystem::remove_all(path); }
-  std::filesystem::path path;
-};
 
 }  // namespace
 
@@ -80,8 +74,8 @@ TEST_CASE("AccessRulesAndRoutingErrors") {
   Metrics metrics;
   ServerConfig config = test_config();
   config.reads_require_token = true;
+  TemporaryDirectory directory;  // before the Api: outlives the catalog it hands over
   Api api(config, metrics);
-  TemporaryDirectory directory;
   Result<std::unique_ptr<Catalog>> catalog = Catalog::open(directory.path.string());
   REQUIRE(catalog.is_ok());
 
@@ -125,8 +119,8 @@ TEST_CASE("AccessRulesAndRoutingErrors") {
 
 TEST_CASE("WritesAreRefusedWhenNoWriteTokenIsConfigured") {
   Metrics metrics;
+  TemporaryDirectory directory;  // before the Api: outlives the catalog it hands over
   Api api(*load_config({}, {}), metrics);
-  TemporaryDirectory directory;
   Result<std::unique_ptr<Catalog>> catalog = Catalog::open(directory.path.string());
   REQUIRE(catalog.is_ok());
   api.install_catalog(std::move(*catalog));

@@ -21,7 +21,10 @@ struct TemporaryDirectory {
            ("waymark-test-" + std::to_string(::getpid()) + "-" + std::to_string(counter++));
     std::filesystem::remove_all(path);
   }
-  ~TemporaryDirectory() { std::filesystem::remove_all(path); }
+  ~TemporaryDirectory() {
+    std::error_code ignored;  // never throw from a destructor (a store's thread may still be deleting files)
+    std::filesystem::remove_all(path, ignored);
+  }
   std::filesystem::path path;
   static inline int counter = 0;
 };
