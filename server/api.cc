@@ -216,6 +216,7 @@ std::string iso_time(std::int64_t unix_ms) {
 Json approximate_json(IndexKind kind, const ApproximateIndexStatus& status) {
   if (kind == IndexKind::exhaustive) return nullptr;
   return {{"built", status.built},
+          {"snapshot", status.snapshot},
           {"built_size", status.built_size},
           {"fresh", status.fresh},
           {"tombstones", status.tombstones},

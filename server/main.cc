@@ -92,7 +92,16 @@ int main(int argc, char** argv) {
       }
       std::size_t shapes = 0;
       const auto collections = (*catalog)->list();
-      for (const auto& [name, collection] : collections) shapes += collection->size();
+      for (const auto& [name, collection] : collections) {
+        shapes += collection->size();
+        const CollectionSettings settings = collection->settings();
+        if (settings.index_kind == IndexKind::exhaustive) continue;
+        const ApproximateIndexStatus approximate = collection->statistics().approximate;
+        // A snapshot that could not be used is worth a warning: the rebuild can take minutes.
+        const auto level = approximate.snapshot.starts_with("rebuilding") ? spdlog::level::warn : spdlog::level::info;
+        spdlog::log(level, "collection {}: {} index: snapshot {}; {} fresh, {} tombstones", name,
+                    index_kind_name(settings.index_kind), approximate.snapshot, approximate.fresh, approximate.tombstones);
+      }
       const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
       spdlog::info("ready: {} collections, {} shapes, opened in {:.2f} s", collections.size(), shapes, seconds);
       api.install_catalog(std::move(*catalog));

@@ -49,7 +49,7 @@ void kill_rounds(bool refit) {
       _exit(127);
     }
     close(pipe_ends[1]);
-    std::this_thread::sleep_for(std::chrono::milliseconds(300 + timing.below(600)));
+    std::this_thread::sleep_for(std::chrono::milliseconds(refit ? 800 + timing.below(1000) : 300 + timing.below(600)));
     kill(child, SIGKILL);
     int status = 0;
     waitpid(child, &status, 0);
