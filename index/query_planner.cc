@@ -233,11 +233,28 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
   const ApproximateIndex* approximate = query.generation->approximate.get();
   if (!options.exact && approximate && approximate->ready()) {
     // Fast mode on a graph or partitioned collection: the approximate index's candidates,
-    // scored exactly; their order is approximate, so the answer is not certified.
+    // scored exactly; which shapes are candidates is approximate, so the answer is not
+    // certified. They are scored in order of their sketch lower bound (from the exhaustive
+    // index's vectors, in memory), so that once the next bound passes the k-th best distance
+    // the rest cannot enter the answer and are never read from the store.
     Result<std::vector<Neighbour>> candidates = approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0));
     if (!candidates) return candidates.status();
+    std::vector<Neighbour> by_bound;
+    by_bound.reserve(candidates->size());
     for (const Neighbour& n : *candidates) {
       if (n.label == excluded_label) continue;
+      Result<std::vector<float>> raw = query.generation->index.vector_of(n.label);
+      if (!raw) continue;  // a tombstone: deleted or replaced since the build
+      by_bound.push_back({n.label, static_cast<float>(Sketcher::unweighted_linf_lower_bound(query.raw, *raw))});
+    }
+    std::sort(by_bound.begin(), by_bound.end(),
+              [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
+    for (const Neighbour& n : by_bound) {
+      // The float bound was rounded from a double: compare with a hair of slack.
+      if (options.metric != Metric::sketch && n.distance * (1 - 1e-6) > top.worst()) {
+        answer.stats.pruned_by_sketch_bound += 1;
+        continue;
+      }
       Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, *filter, answer.stats);
       if (!candidate) return candidate.status();
       if (*candidate) score(query, **candidate, options.metric, top, answer.stats);
