@@ -202,16 +202,6 @@ std::optional<HttpResponse> check_access(const HttpRequest& request, Access acce
 
 // --- collections ----------------------------------------------------------------------------
 
-std::string iso_time(std::int64_t unix_ms) {
-  const std::time_t seconds = static_cast<std::time_t>(unix_ms / 1000);
-  std::tm utc{};
-  gmtime_r(&seconds, &utc);
-  char text[40];
-  std::snprintf(text, sizeof text, "%04d-%02d-%02dT%02d:%02d:%02d.%03dZ", utc.tm_year + 1900, utc.tm_mon + 1,
-                utc.tm_mday, utc.tm_hour, utc.tm_min, utc.tm_sec, static_cast<int>(unix_ms % 1000));
-  return text;
-}
-
 // null for exhaustive collections.
 Json approximate_json(IndexKind kind, const ApproximateIndexStatus& status) {
   if (kind == IndexKind::exhaustive) return nullptr;

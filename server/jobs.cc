@@ -3,7 +3,8 @@
 #include <spdlog/spdlog.h>
 
 #include <cstdio>
-#include <ctime>
+
+#include "server/request_json.h"
 
 namespace waymark::server {
 
@@ -28,14 +29,7 @@ struct JobRunner::Job {
 namespace {
 
 std::string utc_text(SystemClock::time_point when) {
-  const auto ms = std::chrono::duration_cast<std::chrono::milliseconds>(when.time_since_epoch()).count();
-  const std::time_t seconds = static_cast<std::time_t>(ms / 1000);
-  std::tm utc{};
-  gmtime_r(&seconds, &utc);
-  char text[40];
-  std::snprintf(text, sizeof text, "%04d-%02d-%02dT%02d:%02d:%02d.%03dZ", utc.tm_year + 1900, utc.tm_mon + 1,
-                utc.tm_mday, utc.tm_hour, utc.tm_min, utc.tm_sec, static_cast<int>(ms % 1000));
-  return text;
+  return iso_time(std::chrono::duration_cast<std::chrono::milliseconds>(when.time_since_epoch()).count());
 }
 
 double seconds_between(SystemClock::time_point from, SystemClock::time_point to) {

@@ -1,6 +1,8 @@
 #include "server/request_json.h"
 
 #include <cmath>
+#include <cstdio>
+#include <ctime>
 
 #include "sketch/geometry/formats.h"
 
@@ -123,6 +125,16 @@ Result<std::string> metadata_field(const Json& object, const char* field) {
   if (found == object.end() || found->is_null()) return std::string("{}");
   if (!found->is_object()) return wrong_type(field, "a JSON object");
   return found->dump();
+}
+
+std::string iso_time(std::int64_t unix_ms) {
+  const std::time_t seconds = static_cast<std::time_t>(unix_ms / 1000);
+  std::tm utc{};
+  gmtime_r(&seconds, &utc);
+  char text[40];
+  std::snprintf(text, sizeof text, "%04d-%02d-%02dT%02d:%02d:%02d.%03dZ", utc.tm_year + 1900, utc.tm_mon + 1,
+                utc.tm_mday, utc.tm_hour, utc.tm_min, utc.tm_sec, static_cast<int>(unix_ms % 1000));
+  return text;
 }
 
 }  // namespace waymark::server

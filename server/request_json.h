@@ -40,4 +40,7 @@ Result<Shape> shape_field(const Json& object, const char* field, const ShapeLimi
 // A metadata object as compact text; absent → "{}".
 Result<std::string> metadata_field(const Json& object, const char* field);
 
+// A time for replies: RFC 3339 in UTC with milliseconds, "2026-12-02T13:05:00.123Z".
+std::string iso_time(std::int64_t unix_ms);
+
 }  // namespace waymark::server
