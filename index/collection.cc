@@ -136,8 +136,6 @@ std::string now_as_record() {
   return std::string(reinterpret_cast<const char*>(&ms), sizeof ms);
 }
 
-rocksdb::WriteOptions durable() { return durable_write(); }
-
 }  // namespace
 
 rocksdb::WriteOptions durable_write() {
@@ -345,13 +343,13 @@ Status upgrade_from_format_2(rocksdb::DB& database, const CollectionSettings& se
     std::memcpy(sketch.data(), bytes.data() + offset + 8, dimension * sizeof(float));
     batch.Put(sketch_key(generation, id), encode_sketch(static_cast<std::int64_t>(label), sketch));
     if (batch.Count() >= 1000) {
-      if (Status s = from_rocksdb(database.Write(durable(), &batch), "upgrading"); !s.is_ok()) return s;
+      if (Status s = from_rocksdb(database.Write(durable_write(), &batch), "upgrading"); !s.is_ok()) return s;
       batch.Clear();
     }
   }
   if (Status s = from_rocksdb(it->status(), "upgrading"); !s.is_ok()) return s;
   put_manifest(batch, settings);
-  return from_rocksdb(database.Write(durable(), &batch), "upgrading");
+  return from_rocksdb(database.Write(durable_write(), &batch), "upgrading");
 }
 
 }  // namespace
@@ -372,7 +370,7 @@ Result<std::unique_ptr<Collection>> Collection::create(const std::string& direct
     Result<std::unique_ptr<rocksdb::DB>> db = open_database(building, true);
     if (!db) return db.status();
     const std::string manifest = manifest_json(settings).dump();
-    if (Status s = from_rocksdb((*db)->Put(durable(), kManifestKey, manifest), "writing the manifest"); !s.is_ok()) {
+    if (Status s = from_rocksdb((*db)->Put(durable_write(), kManifestKey, manifest), "writing the manifest"); !s.is_ok()) {
       return s;
     }
   }
@@ -546,7 +544,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     }
   }
   write.Put(kLastWriteKey, now_as_record());
-  if (Status s = from_rocksdb(state.database->Write(durable(), &write), "writing a batch"); !s.is_ok()) return s;
+  if (Status s = from_rocksdb(state.database->Write(durable_write(), &write), "writing a batch"); !s.is_ok()) return s;
 
   // Durable: now make it searchable.
   std::unique_lock lock(state.labels_mutex);
@@ -590,7 +588,7 @@ Status Collection::remove(std::span<const std::string> ids) {
   }
   if (labels.empty()) return Status::ok();
   write.Put(kLastWriteKey, now_as_record());
-  if (Status s = from_rocksdb(state.database->Write(durable(), &write), "deleting"); !s.is_ok()) return s;
+  if (Status s = from_rocksdb(state.database->Write(durable_write(), &write), "deleting"); !s.is_ok()) return s;
   std::unique_lock lock(state.labels_mutex);
   if (Status s = current.remove(labels); !s.is_ok()) return s;
   if (pending) {
