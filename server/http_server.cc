@@ -1,8 +1,8 @@
 #include "server/http_server.h"
 
-#include <algorithm>
 #include <spdlog/spdlog.h>
 
+#include <algorithm>
 #include <atomic>
 #include <boost/asio/signal_set.hpp>
 #include <boost/asio/ssl.hpp>
@@ -14,6 +14,7 @@
 #include <boost/beast/ssl.hpp>
 #include <chrono>
 #include <optional>
+#include <string_view>
 #include <thread>
 
 namespace waymark::server {
@@ -82,6 +83,21 @@ class Session : public std::enable_shared_from_this<Session<Stream>> {
     }
     parser_->body_limit(limit);  // chunked bodies are checked as they arrive
     beast::get_lowest_layer(stream_).expires_after(std::chrono::milliseconds(shared_.config.read_timeout_ms));
+    // A client that asked to be told before it sends the body (curl does for large uploads)
+    // would otherwise wait a second for this interim reply before sending anything.
+    if (beast::iequals(header[http::field::expect], "100-continue")) {
+      static constexpr std::string_view kContinue = "HTTP/1.1 100 Continue\r\n\r\n";
+      asio::async_write(stream_, asio::buffer(kContinue.data(), kContinue.size()),
+                        [self = this->shared_from_this()](beast::error_code e, std::size_t) {
+                          if (e) return self->close();
+                          self->read_body();
+                        });
+      return;
+    }
+    read_body();
+  }
+
+  void read_body() {
     http::async_read(stream_, buffer_, *parser_, [self = this->shared_from_this()](beast::error_code e, std::size_t) {
       self->on_body(e);
     });

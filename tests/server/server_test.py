@@ -412,6 +412,29 @@ def run_api_checks(server, directory):
         check(status == 200, "keep-alive request")
     connection.close()
 
+    # "Expect: 100-continue" (curl sends it for large uploads) gets the interim reply at once,
+    # then the real one once the body arrives.
+    body = json.dumps({"shape": "LINESTRING (0 0, 10 2, 20 -1, 30 0)", "k": 1}).encode()
+    sock = socket.create_connection(("127.0.0.1", server.port))
+    sock.settimeout(5)
+    sock.sendall(b"POST /v1/collections/parts/nearest HTTP/1.1\r\nHost: x\r\nExpect: 100-continue\r\n"
+                 b"Content-Type: application/json\r\nContent-Length: " + str(len(body)).encode() + b"\r\n\r\n")
+    started = time.time()
+    try:
+        interim = sock.recv(4096)
+    except socket.timeout:
+        interim = b""
+    check(interim.startswith(b"HTTP/1.1 100 Continue") and time.time() - started < 0.5, f"100-continue: {interim!r}")
+    sock.sendall(body)
+    final = b""
+    while b"\r\n\r\n" not in final:
+        chunk = sock.recv(4096)
+        if not chunk:
+            break
+        final += chunk
+    check(final.startswith(b"HTTP/1.1 200"), f"100-continue: then the answer: {final[:80]!r}")
+    sock.close()
+
     # A slow-drip request is cut off by read_timeout_ms (1.5 s here).
     sock = socket.create_connection(("127.0.0.1", server.port))
     sock.sendall(b"POST /v1/collections/parts/nearest HTTP/1.1\r\nHost: x\r\nContent-Length: 100\r\n\r\n{")
