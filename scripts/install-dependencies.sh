@@ -18,6 +18,7 @@ packages=(
   libgeos-dev libgeos++-dev         # outside reference for distances (tests, benchmarks)
   librocksdb-dev                    # embedded storage engine (crash-safe WAL, atomic write batches)
   hershey-fonts-data                # real single-stroke glyphs for tests and evaluation
+  libfreetype-dev fonts-dejavu-core # real glyph outlines (TrueType) for tests
   python3-shapely python3-scipy     # outside references, run with /usr/bin/python3
   clang libclang-rt-14-dev          # sanitizer and fuzzing runtimes
 )

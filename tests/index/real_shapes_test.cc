@@ -1,11 +1,13 @@
 // Fast-mode recall against the full exact scan on real shapes: Hershey single-stroke glyphs
-// from Debian's hershey-fonts-data (licence and acknowledgements in tests/support/hershey.h).
+// from Debian's hershey-fonts-data (licence and acknowledgements in tests/support/hershey.h),
+// and TrueType glyph outlines from Debian's fonts-dejavu-core (tests/support/truetype.h).
 #include <catch2/catch.hpp>
 #include <filesystem>
 
 #include "index/collection.h"
 #include "support/hershey.h"
 #include "support/recall.h"
+#include "support/truetype.h"
 
 using namespace waymark;
 
@@ -22,7 +24,23 @@ struct GlyphCheck {
 
 // Fast-mode recall@10 against the full scan, and exact mode's agreement with it, over every
 // 13th glyph as a query.
-GlyphCheck check_glyphs(Metric metric, IndexKind kind) {
+GlyphCheck check_recall(const std::vector<ShapeRecord>& records, Metric metric, IndexKind kind);
+
+std::vector<ShapeRecord> hershey_records(Metric metric) {
+  std::vector<ShapeRecord> records;
+  for (const char* style : kStyles) {
+    for (const testing::Glyph& glyph : testing::read_hershey_glyphs(style)) {
+      const Shape shape = metric == Metric::frechet ? testing::longest_stroke(glyph.shape) : glyph.shape;
+      records.push_back({std::string(style) + "/" + glyph.character, shape, "{}"});
+    }
+  }
+  REQUIRE(records.size() == 11 * 52);
+  return records;
+}
+
+GlyphCheck check_glyphs(Metric metric, IndexKind kind) { return check_recall(hershey_records(metric), metric, kind); }
+
+GlyphCheck check_recall(const std::vector<ShapeRecord>& records, Metric metric, IndexKind kind) {
   const std::filesystem::path directory =
       std::filesystem::temp_directory_path() / ("waymark-glyphs-" + std::to_string(::getpid()));
   std::filesystem::remove_all(directory);
@@ -32,14 +50,6 @@ GlyphCheck check_glyphs(Metric metric, IndexKind kind) {
   settings.approximate.minimum_size = 100;
   Result<std::unique_ptr<Collection>> collection = Collection::create(directory.string(), settings);
   REQUIRE(collection.is_ok());
-  std::vector<ShapeRecord> records;
-  for (const char* style : kStyles) {
-    for (const testing::Glyph& glyph : testing::read_hershey_glyphs(style)) {
-      const Shape shape = metric == Metric::frechet ? testing::longest_stroke(glyph.shape) : glyph.shape;
-      records.push_back({std::string(style) + "/" + glyph.character, shape, "{}"});
-    }
-  }
-  REQUIRE(records.size() == 11 * 52);
   REQUIRE((*collection)->upsert(records).is_ok());
   REQUIRE((*collection)->build_approximate_index_now().is_ok());
   GlyphCheck check;
@@ -90,5 +100,34 @@ TEST_CASE("HersheyGlyphsRecallWithGraphAndPartitionedIndexes") {
   for (IndexKind kind : {IndexKind::graph, IndexKind::partitioned}) {
     require_targets(Metric::hausdorff, "Hershey glyphs, 572 shapes", kind);
     require_targets(Metric::frechet, "Hershey glyphs (longest stroke), 572 shapes", kind);
+  }
+}
+
+// The six fonts of fonts-dejavu-core, 52 letters each: 312 outlines (Fréchet: their longest
+// rings, which keep each font's start point and direction).
+TEST_CASE("TrueTypeOutlinesRecallForEveryIndexKind") {
+  for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
+    std::vector<ShapeRecord> records;
+    for (const char* font : {"DejaVuSans", "DejaVuSans-Bold", "DejaVuSansMono", "DejaVuSansMono-Bold", "DejaVuSerif",
+                             "DejaVuSerif-Bold"}) {
+      for (const testing::Glyph& glyph :
+           testing::read_truetype_glyphs(std::string("/usr/share/fonts/truetype/dejavu/") + font + ".ttf", font)) {
+        const Shape shape = metric == Metric::frechet ? testing::longest_ring(glyph.shape) : glyph.shape;
+        records.push_back({glyph.style + "/" + glyph.character, shape, "{}"});
+      }
+    }
+    REQUIRE(records.size() == 6 * 52);
+    for (IndexKind kind : {IndexKind::exhaustive, IndexKind::graph, IndexKind::partitioned}) {
+      const GlyphCheck check = check_recall(records, metric, kind);
+      WARN("DejaVu outlines, 312 shapes, " << index_kind_name(kind) << " index: " << metric_name(metric)
+                                           << " fast-mode recall@10 = " << check.recall);
+      // Hausdorff meets the 0.95 target. Fréchet on closed rings does not (0.94 measured on
+      // 2026-12-02): rings of different fonts start at other points, so their Fréchet distance
+      // is far above the Hausdorff-type sketch bound and the candidate order is weak. This
+      // floor pins today's behaviour; exact mode stays exact (checked below).
+      CHECK(check.recall >= (metric == Metric::hausdorff ? 0.95 : 0.93));
+      CHECK(check.exact_mismatches == 0);
+      CHECK(check.uncertified == 0);
+    }
   }
 }
