@@ -465,7 +465,9 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   sketches.reset();
   state->database->ReleaseSnapshot(snapshot);
   if (!failure.is_ok()) return failure;
-  if (Status s = generation.add(labels, vectors); !s.is_ok()) return s;
+  // The exhaustive index only: the approximate one is restored from its snapshot (or built)
+  // from this index, so copying every vector into its fresh part here would be undone at once.
+  if (Status s = generation.index.add(labels, vectors); !s.is_ok()) return s;
   state->directory = directory;
   if (generation.approximate) restore_approximate_index(*state);
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
