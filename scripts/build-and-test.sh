@@ -4,7 +4,7 @@
 # .ci/run both call this script.
 set -euo pipefail
 cd "$(dirname "$0")/.."
-bash scripts/install-dependencies.sh
+bash scripts/install-dependencies.sh --tests
 jobs=$(nproc)
 # libgomp spin-waits by default; keep it from starving the other test process (../shared/deps.md).
 export OMP_WAIT_POLICY=PASSIVE

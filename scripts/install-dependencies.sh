@@ -1,6 +1,8 @@
 #!/usr/bin/env bash
 # Installs what Waymark needs from Debian's packages, skipping what is already there.
 # Used by README.md's set-up commands and by .ci/run, so both see the same machine.
+# With --tests it also installs what only the tests need: Debian's chromium, Node.js when the
+# machine has none, and playwright-core from the npm registry (tests/web, pinned by its lock file).
 #
 # Boost line: we use Debian's default 1.74 (libboost-dev). libboost1.81-dev conflicts with the
 # 1.74 -dev packages that python3-scipy pulls in, and installing it removes python3-scipy and
@@ -21,7 +23,24 @@ packages=(
   libfreetype-dev fonts-dejavu-core # real glyph outlines (TrueType) for tests
   python3-shapely python3-scipy     # outside references, run with /usr/bin/python3
   clang libclang-rt-14-dev          # sanitizer and fuzzing runtimes
+  libpugixml-dev                    # SVG files for `waymark ingest`
 )
+for_tests=0
+if [[ "${1:-}" == "--tests" ]]; then
+  for_tests=1
+  packages+=(chromium)              # the drawing-search page's browser test
+  command -v node >/dev/null && command -v npm >/dev/null || packages+=(nodejs npm)
+fi
+
+install_page_test_modules() {
+  ((for_tests)) || return 0
+  local here
+  here=$(cd "$(dirname "$0")/.." && pwd)
+  if [[ ! -f "$here/tests/web/node_modules/playwright-core/package.json" ]]; then
+    echo "install-dependencies: npm ci in tests/web (playwright-core)"
+    npm ci --prefix "$here/tests/web" --no-audit --no-fund
+  fi
+}
 
 missing=()
 for package in "${packages[@]}"; do
@@ -30,7 +49,8 @@ for package in "${packages[@]}"; do
 done
 
 if ((${#missing[@]} == 0)); then
-  echo "install-dependencies: everything is installed"
+  echo "install-dependencies: every package is installed"
+  install_page_test_modules
   exit 0
 fi
 
@@ -40,3 +60,4 @@ if [[ $(id -u) -ne 0 ]]; then sudo_prefix=(sudo); fi
 export DEBIAN_FRONTEND=noninteractive
 "${sudo_prefix[@]}" apt-get update -q
 "${sudo_prefix[@]}" apt-get install -y -q --no-install-recommends "${missing[@]}"
+install_page_test_modules

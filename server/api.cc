@@ -1,4 +1,5 @@
 #include "server/api.h"
+#include "server/web_assets.h"
 
 #include <spdlog/spdlog.h>
 
@@ -28,6 +29,8 @@ using Clock = std::chrono::steady_clock;
 const std::vector<RouteDescription> kRoutes = {
     {"GET", "/healthz", Access::open, false, false},
     {"GET", "/readyz", Access::open, false, false},
+    {"GET", "/", Access::open, false, false},
+    {"GET", "/ui/{file}", Access::open, false, false},
     {"GET", "/metrics", Access::read, false, false},
     {"GET", "/v1/collections", Access::read, false, false},
     {"PUT", "/v1/collections/{name}", Access::write, false, false},
@@ -332,6 +335,25 @@ Result<RefitOptions> refit_options_from(const Json& body) {
   return options;
 }
 
+// --- the drawing-search page ---------------------------------------------------------------
+
+HttpResponse web_asset_response(const std::string& name) {
+  for (const WebAsset& asset : web_assets()) {
+    if (asset.name != name) continue;
+    HttpResponse response;
+    response.content_type = std::string(asset.content_type);
+    response.body = std::string(asset.body);
+    response.headers.emplace_back("Cache-Control", "no-cache");
+    response.headers.emplace_back("X-Content-Type-Options", "nosniff");
+    // The page loads nothing from elsewhere and may not be framed.
+    response.headers.emplace_back("Content-Security-Policy",
+                                  "default-src 'self'; script-src 'self'; style-src 'self'; connect-src 'self'; "
+                                  "img-src 'self' data:; frame-ancestors 'none'; base-uri 'none'; form-action 'none'");
+    return response;
+  }
+  return Api::error_response(404, "not_found", "no page file named " + name, "path");
+}
+
 // --- queries --------------------------------------------------------------------------------
 
 const char* guarantee_of(bool certified, Metric metric, bool range) {
@@ -484,7 +506,7 @@ HttpResponse Api::handle(const HttpRequest& request) {
   if (std::optional<HttpResponse> refused = check_access(request, context.route->access, config_)) return *refused;
   context.catalog = catalog_.load();
   const std::string pattern = context.route->pattern;
-  if (!context.catalog && pattern != "/healthz" && pattern != "/metrics") {
+  if (!context.catalog && pattern != "/healthz" && pattern != "/metrics" && pattern != "/" && pattern != "/ui/{file}") {
     HttpResponse response = error_response(503, "not_ready", "the stores are still opening", "");
     response.headers.emplace_back("Retry-After", "1");
     return response;
@@ -498,6 +520,7 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   Catalog* catalog = context.catalog;
 
   if (pattern == "/healthz") return json_response(200, {{"status", "up"}});
+  if (pattern == "/" || pattern == "/ui/{file}") return web_asset_response(pattern == "/" ? "index.html" : context.parameters.at("file"));
   if (pattern == "/readyz") return json_response(200, {{"status", "ready"}, {"collections", catalog->list().size()}});
   if (pattern == "/metrics") {
     std::vector<CollectionGauges> gauges;
@@ -638,10 +661,21 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       limit = value;
     }
     const std::string after = context.query.contains("after") ? context.query.at("after") : "";
+    bool ids_only = false;
+    if (auto text = context.query.find("ids_only"); text != context.query.end()) {
+      if (text->second != "true" && text->second != "false") {
+        return from_status(invalid_argument("ids_only must be true or false", "ids_only"));
+      }
+      ids_only = text->second == "true";
+    }
     Result<std::vector<ShapeRecord>> page = collection.list(after, limit);
     if (!page) return from_status(page.status());
     Json shapes = Json::array();
     for (const ShapeRecord& record : *page) {
+      if (ids_only) {
+        shapes.push_back({{"id", record.id}});
+        continue;
+      }
       shapes.push_back({{"id", record.id},
                         {"geometry", Json::parse(to_geojson(record.shape))},
                         {"metadata", Json::parse(record.metadata, nullptr, false)}});

@@ -1,11 +1,12 @@
 // `waymark`: the command line for Waymark. Geometry commands work locally on shape text or
-// files; server commands (added with the server) talk to waymarkd over HTTP.
+// files; server commands talk to waymarkd over HTTP only.
 #include <iostream>
 #include <string>
 #include <vector>
 
 #include "clients/cli/demo_catalogue.h"
 #include "clients/cli/geometry_commands.h"
+#include "clients/cli/server_commands.h"
 
 namespace {
 
@@ -21,6 +22,21 @@ Geometry commands (local, no server):
       with one shape per line, in the frame given by --frame.
   sketch --landmarks FILE [--json] [--region] SHAPE
       Prints the shape's sketch vector against the landmarks.
+
+Server commands (over HTTP; --server URL or WAYMARK_SERVER, default http://127.0.0.1:7700;
+--token TOKEN or WAYMARK_TOKEN):
+  ingest COLLECTION PATH... [--id-property NAME] [--batch N] [--resume] [--retries N]
+                            [--progress auto|bar|lines|none]
+      Loads files and folders: GeoJSON (.geojson, .json), WKT lines "ID<TAB>WKT" (.wkt, .txt,
+      .tsv), SVG (.svg: path, polyline and polygon elements) and bulk NDJSON (.ndjson). Retries on
+      429/503; --resume skips ids already stored. Lists every rejected input with its place.
+  nearest COLLECTION (SHAPE | --id ID) [--k N] [--metric M] [--exact] [--candidates N]
+                     [--filter JSON] [--json]
+      The k stored shapes nearest to SHAPE (a file or inline text), or to a stored shape.
+  stats [COLLECTION] [--json]
+      Every collection, or one collection's settings and statistics.
+  export COLLECTION [--output FILE]
+      Every stored shape as a GeoJSON FeatureCollection.
 
 Demo data:
   demo-catalogue [--count N] [--seed S]
@@ -46,6 +62,10 @@ int main(int argc, char** argv) {
   if (command == "distance") return waymark::cli::distance_command(words);
   if (command == "landmarks") return waymark::cli::landmarks_command(words);
   if (command == "sketch") return waymark::cli::sketch_command(words);
+  if (command == "ingest") return waymark::cli::ingest_command(words);
+  if (command == "nearest") return waymark::cli::nearest_command(words);
+  if (command == "stats") return waymark::cli::stats_command(words);
+  if (command == "export") return waymark::cli::export_command(words);
   if (command == "demo-catalogue") return waymark::cli::demo_catalogue_command(words);
   std::cerr << "waymark: unknown command '" << command << "'\n\n" << kUsage;
   return 2;

@@ -1,0 +1,364 @@
+#include "clients/cli/shape_sources.h"
+
+#include <algorithm>
+#include <cctype>
+#include <fstream>
+#include <pugixml.hpp>
+#include <sstream>
+
+namespace waymark::cli {
+
+namespace fs = std::filesystem;
+using Json = nlohmann::json;
+
+namespace {
+
+std::string lower(std::string text) {
+  for (char& c : text) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return text;
+}
+
+bool read_file(const fs::path& path, std::string& contents) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return false;
+  std::ostringstream buffer;
+  buffer << in.rdbuf();
+  contents = buffer.str();
+  return static_cast<bool>(in) || in.eof();
+}
+
+std::size_t line_at(const std::string& text, std::ptrdiff_t offset) {
+  if (offset < 0) return 0;
+  const auto end = text.begin() + std::min<std::ptrdiff_t>(offset, static_cast<std::ptrdiff_t>(text.size()));
+  return 1 + static_cast<std::size_t>(std::count(text.begin(), end, '\n'));
+}
+
+std::string json_error_place(const Json::parse_error& error, const std::string& text) {
+  const std::size_t byte = error.byte > 0 ? error.byte - 1 : 0;
+  return "line " + std::to_string(line_at(text, static_cast<std::ptrdiff_t>(byte))) + ", byte offset " +
+         std::to_string(byte);
+}
+
+// A JSON id may be a string or a number (RFC 7946 §3.2 allows both for a feature's id).
+std::optional<std::string> id_text(const Json& value) {
+  if (value.is_string()) return value.get<std::string>();
+  if (value.is_number_integer() || value.is_number_unsigned()) return value.dump();
+  if (value.is_number_float()) return value.dump();
+  return std::nullopt;
+}
+
+void read_geojson(const fs::path& path, const std::string& text, const SourceOptions& options,
+                  const std::function<void(SourceShape&&)>& emit, std::vector<SourceProblem>& problems) {
+  const std::string name = path.string();
+  Json root;
+  try {
+    root = Json::parse(text);
+  } catch (const Json::parse_error& error) {
+    problems.push_back({name + ": " + json_error_place(error, text), "not valid JSON"});
+    return;
+  }
+  if (!root.is_object() || !root.contains("type") || !root["type"].is_string()) {
+    problems.push_back({name, "not GeoJSON: the top level must be an object with a \"type\""});
+    return;
+  }
+  const std::string type = root["type"];
+  std::vector<const Json*> features;
+  if (type == "FeatureCollection") {
+    if (!root.contains("features") || !root["features"].is_array()) {
+      problems.push_back({name, "a FeatureCollection needs a \"features\" array"});
+      return;
+    }
+    for (const Json& feature : root["features"]) features.push_back(&feature);
+  } else if (type == "Feature") {
+    features.push_back(&root);
+  } else {
+    emit({path.stem().string(), root, Json::object(), name + ": the geometry"});
+    return;
+  }
+  const std::string stem = path.stem().string();
+  for (std::size_t i = 0; i < features.size(); ++i) {
+    const Json& feature = *features[i];
+    std::string where = name + ": feature " + std::to_string(i + 1);
+    if (!feature.is_object() || feature.value("type", Json()) != "Feature") {
+      problems.push_back({where, "not a GeoJSON Feature object"});
+      continue;
+    }
+    Json properties = feature.contains("properties") && feature["properties"].is_object() ? feature["properties"]
+                                                                                          : Json::object();
+    std::optional<std::string> id;
+    if (!options.id_property.empty()) {
+      if (!properties.contains(options.id_property) || !(id = id_text(properties[options.id_property]))) {
+        problems.push_back({where, "has no string or number property \"" + options.id_property + "\" for its id"});
+        continue;
+      }
+    } else if (feature.contains("id")) {
+      id = id_text(feature["id"]);
+      if (!id) {
+        problems.push_back({where, "its id is neither a string nor a number"});
+        continue;
+      }
+    } else {
+      id = stem + "-" + std::to_string(i + 1);
+    }
+    where += " (id " + *id + ")";
+    if (!feature.contains("geometry") || feature["geometry"].is_null()) {
+      problems.push_back({where, "has no geometry"});
+      continue;
+    }
+    emit({*id, feature["geometry"], std::move(properties), std::move(where)});
+  }
+}
+
+bool starts_with_wkt_keyword(std::string_view text) {
+  static constexpr std::string_view kKeywords[] = {"POINT", "LINESTRING", "POLYGON", "MULTIPOINT", "MULTILINESTRING",
+                                                   "MULTIPOLYGON", "GEOMETRYCOLLECTION"};
+  std::string word;
+  for (char c : text) {
+    if (!std::isalpha(static_cast<unsigned char>(c))) break;
+    word += static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  }
+  return std::find(std::begin(kKeywords), std::end(kKeywords), word) != std::end(kKeywords);
+}
+
+std::string_view trim(std::string_view text) {
+  while (!text.empty() && std::isspace(static_cast<unsigned char>(text.front()))) text.remove_prefix(1);
+  while (!text.empty() && std::isspace(static_cast<unsigned char>(text.back()))) text.remove_suffix(1);
+  return text;
+}
+
+void read_wkt_lines(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
+                    std::vector<SourceProblem>& problems) {
+  const std::string name = path.string(), stem = path.stem().string();
+  std::size_t line_number = 0;
+  for (std::size_t begin = 0; begin < text.size();) {
+    std::size_t end = text.find('\n', begin);
+    if (end == std::string::npos) end = text.size();
+    const std::string_view line = trim(std::string_view(text).substr(begin, end - begin));
+    begin = end + 1;
+    ++line_number;
+    if (line.empty() || line.front() == '#') continue;
+    const std::string where = name + ": line " + std::to_string(line_number);
+    SourceShape shape;
+    shape.where = where;
+    if (line.find('\t') != std::string_view::npos) {
+      std::vector<std::string_view> fields;
+      for (std::size_t start = 0;;) {
+        const std::size_t tab = line.find('\t', start);
+        fields.push_back(trim(line.substr(start, tab == std::string_view::npos ? std::string_view::npos : tab - start)));
+        if (tab == std::string_view::npos) break;
+        start = tab + 1;
+      }
+      if (fields.size() > 3 || fields[0].empty() || fields[1].empty()) {
+        problems.push_back({where, "expected ID<TAB>WKT or ID<TAB>WKT<TAB>METADATA-JSON"});
+        continue;
+      }
+      shape.id = std::string(fields[0]);
+      shape.geometry = std::string(fields[1]);
+      if (fields.size() == 3 && !fields[2].empty()) {
+        try {
+          shape.metadata = Json::parse(fields[2]);
+        } catch (const Json::parse_error& error) {
+          problems.push_back({where, "the metadata column is not valid JSON (column byte " + std::to_string(error.byte) + ")"});
+          continue;
+        }
+        if (!shape.metadata.is_object()) {
+          problems.push_back({where, "the metadata column must be a JSON object"});
+          continue;
+        }
+      }
+    } else if (starts_with_wkt_keyword(line)) {
+      shape.id = stem + "-" + std::to_string(line_number);
+      shape.geometry = std::string(line);
+    } else {
+      const std::size_t space = line.find_first_of(" ,;");
+      if (space == std::string_view::npos) {
+        problems.push_back({where, "expected ID and WKT on the line"});
+        continue;
+      }
+      shape.id = std::string(line.substr(0, space));
+      shape.geometry = std::string(trim(line.substr(space + 1)));
+    }
+    emit(std::move(shape));
+  }
+}
+
+// SVG <polyline>/<polygon> points: numbers separated by whitespace and/or commas (SVG 1.1 §9.7).
+std::optional<std::string> path_data_of_points(std::string_view points, bool closed) {
+  std::vector<double> numbers;
+  const std::string text(points);
+  const char* cursor = text.c_str();
+  while (true) {
+    while (*cursor == ',' || std::isspace(static_cast<unsigned char>(*cursor))) ++cursor;
+    if (*cursor == '\0') break;
+    char* end = nullptr;
+    const double value = std::strtod(cursor, &end);
+    if (end == cursor) return std::nullopt;
+    numbers.push_back(value);
+    cursor = end;
+  }
+  if (numbers.size() < 2 || numbers.size() % 2 != 0) return std::nullopt;
+  std::ostringstream data;
+  data.precision(17);
+  for (std::size_t i = 0; i < numbers.size(); i += 2) data << (i == 0 ? "M " : " L ") << numbers[i] << ' ' << numbers[i + 1];
+  if (closed) data << " Z";
+  return data.str();
+}
+
+void read_svg(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
+              std::vector<SourceProblem>& problems) {
+  const std::string name = path.string(), stem = path.stem().string();
+  pugi::xml_document document;
+  const pugi::xml_parse_result parsed = document.load_buffer(text.data(), text.size());
+  if (!parsed) {
+    problems.push_back({name + ": line " + std::to_string(line_at(text, parsed.offset)) + ", byte offset " +
+                            std::to_string(parsed.offset),
+                        std::string("not well-formed XML: ") + parsed.description()});
+    return;
+  }
+  const pugi::xml_node root = document.document_element();
+  if (lower(root.name()) != "svg" && std::string_view(root.name()).find(":svg") == std::string_view::npos) {
+    problems.push_back({name, "not an SVG document: the root element is <" + std::string(root.name()) + ">"});
+    return;
+  }
+  std::size_t element_number = 0;
+  auto local_name = [](const pugi::xml_node& node) {
+    std::string_view tag = node.name();
+    if (const std::size_t colon = tag.find(':'); colon != std::string_view::npos) tag.remove_prefix(colon + 1);
+    return std::string(tag);
+  };
+  // Depth-first, in document order; `transformed` is true under an element with a transform.
+  std::function<void(const pugi::xml_node&, bool)> visit = [&](const pugi::xml_node& node, bool transformed) {
+    for (const pugi::xml_node& child : node.children()) {
+      if (child.type() != pugi::node_element) continue;
+      const std::string tag = local_name(child);
+      if (tag == "defs" || tag == "clipPath" || tag == "mask" || tag == "pattern" || tag == "marker" || tag == "symbol") {
+        continue;  // not drawn where they stand
+      }
+      const bool here_transformed = transformed || !child.attribute("transform").empty();
+      if (tag == "path" || tag == "polyline" || tag == "polygon") {
+        ++element_number;
+        const std::string id_attribute = child.attribute("id").value();
+        const std::string id = id_attribute.empty() ? stem + "-" + std::to_string(element_number) : id_attribute;
+        const std::string where = name + ": line " + std::to_string(line_at(text, child.offset_debug())) + ", <" + tag +
+                                  "> " + std::to_string(element_number) + " (id " + id + ")";
+        if (here_transformed) {
+          problems.push_back({where, "a transform applies to it, and transforms are not applied on load; "
+                                     "flatten transforms in the drawing program before exporting"});
+          continue;
+        }
+        std::optional<std::string> data;
+        if (tag == "path") {
+          data = child.attribute("d").value();
+          if (trim(*data).empty()) {
+            problems.push_back({where, "the path has no d attribute"});
+            continue;
+          }
+        } else {
+          data = path_data_of_points(child.attribute("points").value(), tag == "polygon");
+          if (!data) {
+            problems.push_back({where, "the points attribute is not a list of coordinate pairs"});
+            continue;
+          }
+        }
+        emit({id, *data, Json::object(), where});
+        continue;
+      }
+      visit(child, here_transformed);
+    }
+  };
+  visit(root, !root.attribute("transform").empty());
+}
+
+void read_ndjson(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
+                 std::vector<SourceProblem>& problems) {
+  const std::string name = path.string();
+  std::size_t line_number = 0;
+  for (std::size_t begin = 0; begin < text.size();) {
+    std::size_t end = text.find('\n', begin);
+    if (end == std::string::npos) end = text.size();
+    const std::string_view line = trim(std::string_view(text).substr(begin, end - begin));
+    begin = end + 1;
+    ++line_number;
+    if (line.empty()) continue;
+    const std::string where = name + ": line " + std::to_string(line_number);
+    Json object;
+    try {
+      object = Json::parse(line);
+    } catch (const Json::parse_error& error) {
+      problems.push_back({where + ", column " + std::to_string(error.byte), "not valid JSON"});
+      continue;
+    }
+    if (!object.is_object() || !object.contains("id") || !object["id"].is_string() || !object.contains("geometry")) {
+      problems.push_back({where, "each line must be an object with a string \"id\" and a \"geometry\""});
+      continue;
+    }
+    SourceShape shape{object["id"], object["geometry"], Json::object(), where + " (id " + object["id"].get<std::string>() + ")"};
+    if (object.contains("metadata") && !object["metadata"].is_null()) shape.metadata = object["metadata"];
+    emit(std::move(shape));
+  }
+}
+
+}  // namespace
+
+std::optional<SourceFormat> format_of(const fs::path& path) {
+  const std::string extension = lower(path.extension().string());
+  if (extension == ".geojson" || extension == ".json") return SourceFormat::geojson;
+  if (extension == ".wkt" || extension == ".txt" || extension == ".tsv") return SourceFormat::wkt_lines;
+  if (extension == ".svg") return SourceFormat::svg;
+  if (extension == ".ndjson" || extension == ".jsonl") return SourceFormat::ndjson;
+  return std::nullopt;
+}
+
+std::vector<fs::path> collect_input_files(const std::vector<std::string>& operands, std::vector<SourceProblem>& problems,
+                                          std::size_t& skipped) {
+  std::vector<fs::path> files;
+  for (const std::string& operand : operands) {
+    std::error_code error;
+    const fs::path path(operand);
+    if (fs::is_directory(path, error)) {
+      std::vector<fs::path> found;
+      for (auto it = fs::recursive_directory_iterator(path, fs::directory_options::skip_permission_denied, error);
+           !error && it != fs::recursive_directory_iterator(); it.increment(error)) {
+        if (!it->is_regular_file(error)) continue;
+        if (format_of(it->path())) {
+          found.push_back(it->path());
+        } else {
+          ++skipped;
+        }
+      }
+      if (error) problems.push_back({operand, "cannot list the folder: " + error.message()});
+      std::sort(found.begin(), found.end());
+      files.insert(files.end(), found.begin(), found.end());
+    } else if (fs::is_regular_file(path, error)) {
+      if (format_of(path)) {
+        files.push_back(path);
+      } else {
+        problems.push_back({operand, "unknown file type; expected .geojson, .json, .wkt, .txt, .tsv, .svg or .ndjson"});
+      }
+    } else {
+      problems.push_back({operand, "no such file or folder"});
+    }
+  }
+  return files;
+}
+
+void read_shape_file(const fs::path& path, const SourceOptions& options, const std::function<void(SourceShape&&)>& emit,
+                     std::vector<SourceProblem>& problems) {
+  std::string text;
+  if (!read_file(path, text)) {
+    problems.push_back({path.string(), "cannot read the file"});
+    return;
+  }
+  switch (*format_of(path)) {
+    case SourceFormat::geojson:
+      return read_geojson(path, text, options, emit, problems);
+    case SourceFormat::wkt_lines:
+      return read_wkt_lines(path, text, emit, problems);
+    case SourceFormat::svg:
+      return read_svg(path, text, emit, problems);
+    case SourceFormat::ndjson:
+      return read_ndjson(path, text, emit, problems);
+  }
+}
+
+}  // namespace waymark::cli

@@ -1,0 +1,62 @@
+// Reading shapes out of the files a bulk load starts from, before they go to the server:
+//
+//   .geojson, .json  a FeatureCollection, one Feature, or one bare geometry. Shape id: the
+//                    feature's "id", or the property named by `id_property`; failing both,
+//                    "<file stem>-<feature number>". Metadata: the feature's properties.
+//   .wkt, .txt, .tsv one shape per line: "ID<TAB>WKT[<TAB>METADATA-JSON]", or "ID WKT", or a
+//                    bare WKT line (id "<file stem>-<line number>"). Blank lines and lines
+//                    starting with '#' are skipped.
+//   .svg             each <path>, <polyline> and <polygon> element. Shape id: its id attribute,
+//                    or "<file stem>-<element number>". Coordinates are taken as written:
+//                    transform attributes are not applied, so an element under one is reported,
+//                    not loaded with a wrong outline.
+//   .ndjson          lines already in the server's bulk format {"id", "geometry", "metadata"}.
+//
+// Geometry is not parsed here: the server parses and validates it and its rejections are mapped
+// back to the `where` of each shape. What is checked here is the file's own structure.
+#pragma once
+
+#include <filesystem>
+#include <functional>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "sketch/status.h"
+
+namespace waymark::cli {
+
+struct SourceShape {
+  std::string id;
+  nlohmann::json geometry;  // a GeoJSON geometry object or a WKT / SVG path data string
+  nlohmann::json metadata = nlohmann::json::object();
+  std::string where;        // "parts/a.geojson: feature 3", "b.wkt: line 12", "c.svg: line 4, <path>"
+};
+
+struct SourceProblem {
+  std::string where;
+  std::string reason;
+};
+
+enum class SourceFormat { geojson, wkt_lines, svg, ndjson };
+
+// The format a file's name implies; nullopt for names this reader does not handle.
+std::optional<SourceFormat> format_of(const std::filesystem::path& path);
+
+// Expands files and folders (recursively, in name order) into the files to read. A folder's files
+// with other extensions are counted in `skipped`, not reported; a named file with an unknown
+// extension, or a path that does not exist, is a problem.
+std::vector<std::filesystem::path> collect_input_files(const std::vector<std::string>& operands,
+                                                       std::vector<SourceProblem>& problems, std::size_t& skipped);
+
+struct SourceOptions {
+  std::string id_property;  // GeoJSON: the property that holds the shape id
+};
+
+// Reads one file and calls `emit` for every shape in it, in file order. Entries that cannot
+// become a shape are added to `problems` with their place; a file that cannot be read or parsed
+// at all is one problem. Time and memory are linear in the file's size.
+void read_shape_file(const std::filesystem::path& path, const SourceOptions& options,
+                     const std::function<void(SourceShape&&)>& emit, std::vector<SourceProblem>& problems);
+
+}  // namespace waymark::cli
