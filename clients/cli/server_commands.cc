@@ -7,6 +7,7 @@
 #include <iostream>
 
 #include "clients/cli/server_connection.h"
+#include "clients/cli/shape_sources.h"
 
 namespace waymark::cli {
 namespace {
@@ -38,15 +39,31 @@ std::string number_text(const Json& value, const char* format = "%.6g") {
   return text;
 }
 
-// A shape operand becomes the request's "shape": JSON (GeoJSON or point arrays) stays JSON,
-// anything else (WKT, SVG path data) is sent as text for the server to parse.
+// A shape operand becomes the request's "shape". A file the bulk loader reads (GeoJSON, WKT
+// lines, SVG, NDJSON) must hold exactly one shape; other text is sent as it is: JSON (GeoJSON or
+// point arrays) as JSON, anything else (WKT, SVG path data) as a string for the server to parse.
 Result<Json> shape_operand(const std::string& operand) {
+  std::error_code error;
+  if (operand.size() < 4096 && std::filesystem::is_regular_file(operand, error) && format_of(operand)) {
+    std::vector<SourceShape> shapes;
+    std::vector<SourceProblem> problems;
+    read_shape_file(operand, {}, [&](SourceShape&& shape) { shapes.push_back(std::move(shape)); }, problems);
+    if (!problems.empty()) {
+      return Status(StatusCode::invalid_argument, problems.front().reason, problems.front().where);
+    }
+    if (shapes.size() != 1) {
+      return Status(StatusCode::invalid_argument,
+                    operand + " holds " + std::to_string(shapes.size()) + " shapes; a query takes exactly one", "shape");
+    }
+    return std::move(shapes.front().geometry);
+  }
   Result<std::string> text = read_shape_argument(operand);
   if (!text) return text.status();
   const std::size_t first = text->find_first_not_of(" \t\r\n");
   if (first != std::string::npos && ((*text)[first] == '{' || (*text)[first] == '[')) {
     Json parsed = Json::parse(*text, nullptr, false);
     if (parsed.is_discarded()) return Status(StatusCode::invalid_argument, "the shape looks like JSON but does not parse", "shape");
+    if (parsed.is_object() && parsed.value("type", "") == "Feature" && parsed.contains("geometry")) return parsed["geometry"];
     return parsed;
   }
   return Json(*text);
@@ -58,7 +75,8 @@ int nearest_command(const std::vector<std::string>& words) {
   constexpr const char* kUsage =
       "usage: waymark nearest COLLECTION (SHAPE | --id ID) [--k N] [--metric hausdorff|frechet|discrete-frechet|sketch]\n"
       "                       [--exact] [--candidates N] [--filter JSON] [--json] [--server URL] [--token TOKEN]\n"
-      "  SHAPE is a file or inline WKT, GeoJSON, SVG path data or point arrays.\n";
+      "  SHAPE is a file with one shape (.geojson, .json, .wkt, .svg, ...) or inline WKT, GeoJSON,\n"
+      "  SVG path data or point arrays.\n";
   Result<Arguments> arguments =
       Arguments::parse(words, with_server_flags({"id", "k", "metric", "candidates", "filter"}), {"exact", "json"});
   if (!arguments) return usage(kUsage, arguments);

@@ -197,6 +197,13 @@ def main():
         code, out, err = cli(port, "nearest", "parts", "LINESTRING (0 0, 10 0, 10 5)", "--k", "2")
         rows = [line.split() for line in out.splitlines()[1:3]]
         check(code == 0 and rows[0][1] == "hook-1" and float(rows[0][2]) == 0.0, "nearest by inline WKT finds the same hook first")
+        one_path = os.path.join(work, "one.svg")
+        with open(one_path, "w") as f:
+            f.write('<svg xmlns="http://www.w3.org/2000/svg"><path d="M 10 10 L 40 10 L 40 20 L 10 20 Z"/></svg>')
+        code, out, err = cli(port, "nearest", "parts", one_path, "--k", "1", "--exact")
+        check(code == 0 and out.splitlines()[1].split()[1:3] == ["slot", "0"], "nearest to an SVG file: " + out + err)
+        code, out, err = cli(port, "nearest", "parts", os.path.join(folder, "sketches.wkt"))
+        check(code == 2 and "holds 4 shapes" in err, "a file of several shapes is refused for a query: " + err)
         code, out, err = cli(port, "nearest", "parts", "--id", "no-such-id")
         check(code == 3 and "404" in err, "a missing id is reported with the server's 404: " + err)
 
