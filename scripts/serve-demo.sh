@@ -49,10 +49,11 @@ else
   curl -sf -X PUT "$address/v1/collections/parts" -H "$authorization" -H 'Content-Type: application/json' \
     -d '{"frame": "centered", "landmarks": {"layout": "grid", "count": 64, "domain": [-80, -80, 80, 80]}}' >/dev/null
   echo "Loading $parts invented parts (brackets, gaskets, clips, flanges) into 'parts'..."
-  "$waymark" demo-catalogue --count "$parts" |
-    curl -sf -X POST "$address/v1/collections/parts/shapes" -H "$authorization" \
-      -H 'Content-Type: application/x-ndjson' -H 'Transfer-Encoding: chunked' --data-binary @- |
-    /usr/bin/python3 -c 'import json, sys; r = json.load(sys.stdin); print("  accepted %d, rejected %d" % (r["accepted"], r["rejected"]))'
+  catalogue_file=$(mktemp --suffix=.ndjson)
+  "$waymark" demo-catalogue --count "$parts" >"$catalogue_file"
+  WAYMARK_SERVER=$address WAYMARK_TOKEN=$token "$waymark" ingest parts "$catalogue_file" --progress none |
+    sed 's/^/  /'
+  rm -f "$catalogue_file"
 fi
 
 query='{"shape": "POLYGON ((0 0, 41 0, 41 6.5, 6 6.5, 6 30, 0 30, 0 0))", "k": 5, "mode": "exact"}'
@@ -76,6 +77,7 @@ for hit in answer["results"]:
 print("  certified exact: %s, %.2f ms" % (str(answer["certified"]).lower(), answer["stats"]["milliseconds"]))
 print("  " + answer["guarantee"])'
 echo
+echo "Drawing search in a browser: $address/"
 echo "API: server/openapi.json. More: GET $address/v1/collections/parts, POST .../within, /metrics."
 if [[ "${WAYMARK_DEMO_EXIT:-0}" == 1 ]]; then exit 0; fi
 wait "$server"

@@ -33,7 +33,9 @@ run_demo() {
 }
 run_demo
 expect "first demo run exits 0" test $? -eq 0
-expect "all parts accepted" grep -q "accepted 400, rejected 0" "$work/out"
+expect "all parts stored by waymark ingest" grep -q "parts: stored 400 shapes from 1 file" "$work/out"
+expect "nothing rejected" test "$(grep -c "rejected" "$work/out")" -eq 0
+expect "points to the drawing-search page" grep -qE "Drawing search in a browser: http://127\.0\.0\.1:[0-9]+/$" "$work/out"
 expect "prints the address" grep -qE "serving on http://127\.0\.0\.1:[0-9]+" "$work/out"
 expect "prints a query to paste" grep -q "curl -s -X POST http://127.0.0.1:.*/v1/collections/parts/nearest" "$work/out"
 expect "five results, brackets first" test "$(grep -cE '^  BRK-[0-9]{5}-[A-D] ' "$work/out")" -ge 1
