@@ -2,7 +2,8 @@
 # Installs what Waymark needs from Debian's packages, skipping what is already there.
 # Used by README.md's set-up commands and by .ci/run, so both see the same machine.
 # With --tests it also installs what only the tests need: Debian's chromium, Node.js when the
-# machine has none, and playwright-core from the npm registry (tests/web, pinned by its lock file).
+# machine has none, and from the npm registry (tests/package.json, pinned by its lock file)
+# playwright-core and world-atlas.
 #
 # Boost line: we use Debian's default 1.74 (libboost-dev). libboost1.81-dev conflicts with the
 # 1.74 -dev packages that python3-scipy pulls in, and installing it removes python3-scipy and
@@ -29,6 +30,7 @@ for_tests=0
 if [[ "${1:-}" == "--tests" ]]; then
   for_tests=1
   packages+=(chromium)              # the drawing-search page's browser test
+  packages+=(fonts-liberation fonts-freefont-ttf gnuplot-nox)  # the evaluation report
   command -v node >/dev/null && command -v npm >/dev/null || packages+=(nodejs npm)
 fi
 
@@ -36,9 +38,9 @@ install_page_test_modules() {
   ((for_tests)) || return 0
   local here
   here=$(cd "$(dirname "$0")/.." && pwd)
-  if [[ ! -f "$here/tests/web/node_modules/playwright-core/package.json" ]]; then
-    echo "install-dependencies: npm ci in tests/web (playwright-core)"
-    npm ci --prefix "$here/tests/web" --no-audit --no-fund
+  if [[ ! -f "$here/tests/node_modules/world-atlas/package.json" || ! -f "$here/tests/node_modules/playwright-core/package.json" ]]; then
+    echo "install-dependencies: npm ci in tests (playwright-core, world-atlas)"
+    npm ci --prefix "$here/tests" --no-audit --no-fund
   fi
 }
 
