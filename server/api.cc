@@ -1,7 +1,7 @@
 #include "server/api.h"
-#include "server/web_assets.h"
 
 #include <spdlog/spdlog.h>
+#include <sys/statvfs.h>
 
 #include <chrono>
 #include <cmath>
@@ -9,6 +9,7 @@
 #include <map>
 
 #include "server/request_json.h"
+#include "server/web_assets.h"
 #include "sketch/distance/frechet.h"
 #include "sketch/distance/hausdorff.h"
 #include "sketch/geometry/formats.h"
@@ -66,11 +67,29 @@ std::pair<int, const char*> http_status_of(StatusCode code) {
     case StatusCode::not_found: return {404, "not_found"};
     case StatusCode::already_exists: return {409, "already_exists"};
     case StatusCode::resource_exhausted: return {413, "too_large"};
+    case StatusCode::storage_full: return {507, "storage_full"};
     case StatusCode::failed_precondition: return {409, "failed_precondition"};
     case StatusCode::data_loss: return {500, "data_loss"};
     case StatusCode::io_error: return {500, "io_error"};
     default: return {500, "internal"};
   }
+}
+
+// Refuses writes while the data directory's file system has less than min_free_disk_bytes free:
+// RocksDB as Debian builds it aborts when a write meets a full disk, so the server stops short.
+Status check_free_space(const ServerConfig& config) {
+  if (config.min_free_disk_bytes == 0) return Status::ok();
+  struct statvfs info {};
+  if (::statvfs(config.data_directory.c_str(), &info) != 0) return Status::ok();  // unknown: the store reports
+  const std::uint64_t free_bytes = static_cast<std::uint64_t>(info.f_bavail) * info.f_frsize;
+  if (free_bytes >= config.min_free_disk_bytes) return Status::ok();
+  spdlog::warn("write refused: {} bytes free on the data directory's disk, min_free_disk_bytes is {}", free_bytes,
+               config.min_free_disk_bytes);
+  return Status(StatusCode::storage_full,
+                "the data directory's disk has " + std::to_string(free_bytes) + " bytes free, less than min_free_disk_bytes (" +
+                    std::to_string(config.min_free_disk_bytes) + "); writes are refused until space is freed, reads and "
+                    "deletions go on",
+                "disk");
 }
 
 HttpResponse from_status(const Status& status) {
@@ -587,6 +606,7 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   const std::string& name = context.parameters.at("name");
   if (Status s = Catalog::check_name(name); !s.is_ok()) return from_status(s);
   if (pattern == "/v1/collections/{name}" && method == "PUT") {
+    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, true);
     if (!body) return from_status(body.status());
     Result<CollectionSettings> settings = settings_from(*body, config_);
@@ -607,6 +627,7 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   Collection& collection = **found;
   if (pattern == "/v1/collections/{name}") return json_response(200, describe(name, collection));
   if (pattern == "/v1/collections/{name}/refit") {
+    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, true);
     if (!body) return from_status(body.status());
     Result<RefitOptions> options = refit_options_from(*body);
@@ -637,6 +658,7 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       if (Status s = collection.remove(ids); !s.is_ok()) return from_status(s);
       return json_response(200, {{"id", id}, {"deleted", true}});
     }
+    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, false);
     if (!body) return from_status(body.status());
     if (Status s = check_known_fields(*body, {"geometry", "metadata"}); !s.is_ok()) return from_status(s);
@@ -706,7 +728,9 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
     std::size_t failed_from_line = 0;
     auto flush = [&]() {
       if (batch.empty() || failure) return;
-      if (Status s = collection.upsert(batch); !s.is_ok()) {
+      Status s = check_free_space(config_);
+      if (s.is_ok()) s = collection.upsert(batch);
+      if (!s.is_ok()) {
         failure = s;
         failed_from_line = batch_lines.front();
         return;

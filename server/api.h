@@ -5,7 +5,7 @@
 // Every error reply is {"error": {"code", "message", "where"}} with the HTTP status its code
 // implies (400 invalid_argument, 401 unauthenticated, 403 forbidden, 404 not_found, 405
 // method_not_allowed, 409 already_exists, 413 too_large, 422 not_applicable, 429 overloaded,
-// 501 not_implemented, 503 not_ready). A rejected request changes no stored data.
+// 501 not_implemented, 503 not_ready, 507 storage_full). A rejected request changes no stored data.
 //
 // Thread safety: handle() may run on many threads at once; it never holds a lock of its own
 // while a query computes exact distances.

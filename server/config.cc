@@ -20,6 +20,7 @@ const Json& defaults() {
       {"worker_threads", 2},
       {"max_body_bytes", 4 * 1024 * 1024},
       {"max_bulk_body_bytes", 512 * 1024 * 1024},
+      {"min_free_disk_bytes", 64 * 1024 * 1024},
       {"bulk_batch_size", 1000},
       {"max_vertices", 100000},
       {"max_k", 1000},
@@ -110,6 +111,7 @@ Result<ServerConfig> to_config(const Json& merged) {
   config.worker_threads = size("worker_threads");
   config.max_body_bytes = size("max_body_bytes");
   config.max_bulk_body_bytes = size("max_bulk_body_bytes");
+  config.min_free_disk_bytes = size("min_free_disk_bytes");
   config.bulk_batch_size = size("bulk_batch_size");
   config.max_vertices = size("max_vertices");
   config.max_k = size("max_k");

@@ -29,6 +29,9 @@ struct ServerConfig {
 
   std::size_t max_body_bytes = 0;       // any request but bulk ingest
   std::size_t max_bulk_body_bytes = 0;  // POST .../shapes (NDJSON)
+  // Writes are refused (507) while the data directory's file system has less free space than
+  // this; 0 turns the check off. RocksDB is not safe to drive into ENOSPC (see README Security).
+  std::uint64_t min_free_disk_bytes = 0;
   std::size_t bulk_batch_size = 0;      // shapes per durable batch during bulk ingest
   std::size_t max_vertices = 0;         // per shape, for new collections and for queries
   std::size_t max_k = 0;

@@ -10,6 +10,7 @@ const char* status_code_name(StatusCode code) {
     case StatusCode::not_found: return "not_found";
     case StatusCode::already_exists: return "already_exists";
     case StatusCode::resource_exhausted: return "resource_exhausted";
+    case StatusCode::storage_full: return "storage_full";
     case StatusCode::data_loss: return "data_loss";
     case StatusCode::io_error: return "io_error";
     case StatusCode::failed_precondition: return "failed_precondition";

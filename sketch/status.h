@@ -21,6 +21,7 @@ enum class StatusCode {
   not_found,           // (HTTP 404)
   already_exists,      // (HTTP 409)
   resource_exhausted,  // a configured limit was exceeded (HTTP 413 / 429)
+  storage_full,        // the disk holding the data has less free space than allowed (HTTP 507)
   data_loss,           // stored data failed its checksum or is truncated
   io_error,            // the operating system refused a read or write
   failed_precondition, // the system is not in a state that allows the operation (HTTP 409/503)

@@ -126,17 +126,22 @@ std::string_view trim(std::string_view text) {
   return text;
 }
 
-void read_wkt_lines(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
-                    std::vector<SourceProblem>& problems) {
-  const std::string name = path.string(), stem = path.stem().string();
+// Calls `visit` with each line's number (from 1) and text without surrounding white space.
+void for_each_trimmed_line(const std::string& text, const std::function<void(std::size_t, std::string_view)>& visit) {
   std::size_t line_number = 0;
   for (std::size_t begin = 0; begin < text.size();) {
     std::size_t end = text.find('\n', begin);
     if (end == std::string::npos) end = text.size();
-    const std::string_view line = trim(std::string_view(text).substr(begin, end - begin));
+    visit(++line_number, trim(std::string_view(text).substr(begin, end - begin)));
     begin = end + 1;
-    ++line_number;
-    if (line.empty() || line.front() == '#') continue;
+  }
+}
+
+void read_wkt_lines(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
+                    std::vector<SourceProblem>& problems) {
+  const std::string name = path.string(), stem = path.stem().string();
+  for_each_trimmed_line(text, [&](std::size_t line_number, std::string_view line) {
+    if (line.empty() || line.front() == '#') return;
     const std::string where = name + ": line " + std::to_string(line_number);
     SourceShape shape;
     shape.where = where;
@@ -150,7 +155,7 @@ void read_wkt_lines(const fs::path& path, const std::string& text, const std::fu
       }
       if (fields.size() > 3 || fields[0].empty() || fields[1].empty()) {
         problems.push_back({where, "expected ID<TAB>WKT or ID<TAB>WKT<TAB>METADATA-JSON"});
-        continue;
+        return;
       }
       shape.id = std::string(fields[0]);
       shape.geometry = std::string(fields[1]);
@@ -159,11 +164,11 @@ void read_wkt_lines(const fs::path& path, const std::string& text, const std::fu
           shape.metadata = Json::parse(fields[2]);
         } catch (const Json::parse_error& error) {
           problems.push_back({where, "the metadata column is not valid JSON (column byte " + std::to_string(error.byte) + ")"});
-          continue;
+          return;
         }
         if (!shape.metadata.is_object()) {
           problems.push_back({where, "the metadata column must be a JSON object"});
-          continue;
+          return;
         }
       }
     } else if (starts_with_wkt_keyword(line)) {
@@ -173,13 +178,13 @@ void read_wkt_lines(const fs::path& path, const std::string& text, const std::fu
       const std::size_t space = line.find_first_of(" ,;");
       if (space == std::string_view::npos) {
         problems.push_back({where, "expected ID and WKT on the line"});
-        continue;
+        return;
       }
       shape.id = std::string(line.substr(0, space));
       shape.geometry = std::string(trim(line.substr(space + 1)));
     }
     emit(std::move(shape));
-  }
+  });
 }
 
 // SVG <polyline>/<polygon> points: numbers separated by whitespace and/or commas (SVG 1.1 §9.7).
@@ -272,30 +277,24 @@ void read_svg(const fs::path& path, const std::string& text, const std::function
 void read_ndjson(const fs::path& path, const std::string& text, const std::function<void(SourceShape&&)>& emit,
                  std::vector<SourceProblem>& problems) {
   const std::string name = path.string();
-  std::size_t line_number = 0;
-  for (std::size_t begin = 0; begin < text.size();) {
-    std::size_t end = text.find('\n', begin);
-    if (end == std::string::npos) end = text.size();
-    const std::string_view line = trim(std::string_view(text).substr(begin, end - begin));
-    begin = end + 1;
-    ++line_number;
-    if (line.empty()) continue;
+  for_each_trimmed_line(text, [&](std::size_t line_number, std::string_view line) {
+    if (line.empty()) return;
     const std::string where = name + ": line " + std::to_string(line_number);
     Json object;
     try {
       object = Json::parse(line);
     } catch (const Json::parse_error& error) {
       problems.push_back({where + ", column " + std::to_string(error.byte), "not valid JSON"});
-      continue;
+      return;
     }
     if (!object.is_object() || !object.contains("id") || !object["id"].is_string() || !object.contains("geometry")) {
       problems.push_back({where, "each line must be an object with a string \"id\" and a \"geometry\""});
-      continue;
+      return;
     }
     SourceShape shape{object["id"], object["geometry"], Json::object(), where + " (id " + object["id"].get<std::string>() + ")"};
     if (object.contains("metadata") && !object["metadata"].is_null()) shape.metadata = object["metadata"];
     emit(std::move(shape));
-  }
+  });
 }
 
 }  // namespace

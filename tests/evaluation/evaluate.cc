@@ -30,22 +30,6 @@ using Clock = std::chrono::steady_clock;
 
 namespace {
 
-double milliseconds(Clock::duration d) { return std::chrono::duration<double, std::milli>(d).count(); }
-
-[[noreturn]] void fail(const std::string& message) {
-  std::fprintf(stderr, "waymark_evaluation: %s\n", message.c_str());
-  std::exit(1);
-}
-
-template <typename T>
-T need(Result<T> result, const char* what) {
-  if (!result) fail(std::string(what) + ": " + result.status().to_string());
-  return std::move(*result);
-}
-
-void need(const Status& status, const char* what) {
-  if (!status.is_ok()) fail(std::string(what) + ": " + status.to_string());
-}
 
 void quality_section(std::ostream& out, bool quick, std::vector<WorstCase>& worst) {
   out << "## 1. Retrieval quality\n\n"

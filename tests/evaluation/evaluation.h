@@ -3,6 +3,9 @@
 // waymark_evaluation (evaluate.cc, the report) and by evaluation_test.cc (which pins them).
 #pragma once
 
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <memory>
 #include <string>
@@ -85,5 +88,25 @@ QualityRow measure_quality(const DataSet& set, Metric metric, Layout layout, std
                            std::vector<WorstCase>* worst = nullptr);
 
 double percentile(std::vector<double> values, double p);
+
+inline double milliseconds(std::chrono::steady_clock::duration d) {
+  return std::chrono::duration<double, std::milli>(d).count();
+}
+
+// This is a measurement program: a failed store or query operation ends it with a message.
+[[noreturn]] inline void fail(const std::string& message) {
+  std::fprintf(stderr, "waymark_evaluation: %s\n", message.c_str());
+  std::exit(1);
+}
+
+template <typename T>
+T need(Result<T> result, const char* what) {
+  if (!result) fail(std::string(what) + ": " + result.status().to_string());
+  return std::move(*result);
+}
+
+inline void need(const Status& status, const char* what) {
+  if (!status.is_ok()) fail(std::string(what) + ": " + status.to_string());
+}
 
 }  // namespace waymark::evaluation

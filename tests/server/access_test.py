@@ -9,55 +9,25 @@ the route-table test (tests/server/api_test.cc), so this walk covers every route
 
 Usage: access_test.py WAYMARKD OPENAPI_JSON
 """
-import http.client
 import json
 import os
 import shutil
-import subprocess
 import sys
 import tempfile
-import threading
 import time
+
+sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "support"))
+from waymarkd_harness import Checks, Waymarkd, call  # noqa: E402
 
 WAYMARKD, OPENAPI = sys.argv[1], sys.argv[2]
 WRITE = "access-write-token-0123456789"
 READ = "access-read-token-0123456789"
-failures = []
-checks = [0]
-
-
-def check(condition, message):
-    checks[0] += 1
-    if not condition:
-        failures.append(message)
-        print("FAIL:", message, flush=True)
+check = Checks("access test")
 
 
 def start(data_directory, **environment):
-    env = dict(os.environ, WAYMARK_WRITE_TOKENS=WRITE, WAYMARK_READ_TOKENS=READ, **environment)
-    process = subprocess.Popen([WAYMARKD, "--data-directory", data_directory, "--port", "0"], stdout=subprocess.PIPE,
-                               stderr=subprocess.STDOUT, text=True, env=env)
-    port = None
-    while port is None:
-        line = process.stdout.readline()
-        assert line, "waymarkd did not start"
-        if "listening on" in line:
-            port = int(line.rsplit(":", 1)[1])
-    threading.Thread(target=lambda: [None for _ in process.stdout], daemon=True).start()
-    while call(port, "GET", "/readyz")[0] != 200:
-        time.sleep(0.05)
-    return process, port
-
-
-def call(port, method, path, body=None, token=None):
-    connection = http.client.HTTPConnection("127.0.0.1", port, timeout=60)
-    headers = {"Content-Type": "application/json"}
-    if token:
-        headers["Authorization"] = "Bearer " + token
-    connection.request(method, path, body=None if body is None else body.encode(), headers=headers)
-    response = connection.getresponse()
-    data = response.read()
-    return response.status, data
+    server = Waymarkd(WAYMARKD, data_directory, dict(WAYMARK_WRITE_TOKENS=WRITE, WAYMARK_READ_TOKENS=READ, **environment))
+    return server, server.port
 
 
 # A body that would change data if the call were allowed, per operation.
@@ -100,7 +70,7 @@ def state(port):
 
 def main():
     work = tempfile.mkdtemp(prefix="waymark-access-")
-    process, port = start(os.path.join(work, "open-reads"))
+    server, port = start(os.path.join(work, "open-reads"))
     ops = list(operations())
     check(len(ops) >= 20 and sum(1 for o in ops if o[2] == "write") >= 7, "the OpenAPI document lists the routes")
     try:
@@ -131,10 +101,9 @@ def main():
         after = state(port)
         check(before == after, "no refused call changed collections, shapes or jobs")
     finally:
-        process.terminate()
-        process.wait(timeout=60)
+        server.stop()
 
-    process, port = start(os.path.join(work, "open-reads"), WAYMARK_READS_REQUIRE_TOKEN="true")
+    server, port = start(os.path.join(work, "open-reads"), WAYMARK_READS_REQUIRE_TOKEN="true")
     try:
         for method, path, kind in ops:
             if kind == "write":
@@ -150,11 +119,9 @@ def main():
                 status, _ = call(port, method, target, body, token=READ)
                 check(status not in (401, 403), label + " is allowed with a read token (got %d)" % status)
     finally:
-        process.terminate()
-        process.wait(timeout=60)
+        server.stop()
         shutil.rmtree(work, ignore_errors=True)
 
 
 main()
-print("access test: %d checks, %d failed" % (checks[0], len(failures)))
-sys.exit(1 if failures else 0)
+check.finish()
