@@ -758,6 +758,9 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
         reject(line_number, "",
                invalid_argument("not valid JSON", "column " + std::to_string(error.byte > 0 ? error.byte : 1)));
         continue;
+      } catch (const Json::exception& error) {  // e.g. a number beyond the range of a double
+        reject(line_number, "", invalid_argument(std::string("not valid JSON: ") + error.what(), "line"));
+        continue;
       }
       if (!object.is_object()) {
         reject(line_number, "", invalid_argument("each line must be a JSON object", "line"));

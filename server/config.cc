@@ -213,6 +213,8 @@ Result<ServerConfig> load_config(const std::vector<std::string>& arguments,
     } catch (const Json::parse_error& error) {
       return invalid_argument(config_file + ": not valid JSON (byte " + std::to_string(error.byte) + ")",
                               config_file + ", byte " + std::to_string(error.byte));
+    } catch (const Json::exception& error) {
+      return invalid_argument(config_file + ": not valid JSON: " + error.what(), config_file);
     }
     if (!file.is_object()) return invalid_argument(config_file + ": must hold a JSON object", config_file);
     for (const auto& [field, value] : file.items()) {

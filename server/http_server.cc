@@ -151,7 +151,15 @@ class Session : public std::enable_shared_from_this<Session<Stream>> {
       shared_.metrics.set_queries_waiting(waiting);
     }
     asio::post(shared_.workers, [self = this->shared_from_this(), request = std::move(request)]() mutable {
-      HttpResponse response = self->shared_.api.handle(request);
+      HttpResponse response;
+      try {
+        response = self->shared_.api.handle(request);
+      } catch (const std::exception& error) {
+        // A bug let an exception out of the API: answer this request, keep serving the rest.
+        spdlog::error("request failed with an exception: method={} target={} what={}", request.method, request.target,
+                      error.what());
+        response = Api::error_response(500, "internal", "the server failed on this request; it is logged", "");
+      }
       if (self->route_.is_query) self->shared_.metrics.set_queries_waiting(--self->shared_.queries_waiting);
       // Back to this connection's strand for the write.
       asio::post(self->stream_.get_executor(), [self, response = std::move(response)]() mutable {

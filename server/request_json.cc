@@ -40,6 +40,9 @@ Result<Json> parse_object(std::string_view text, bool allow_empty) {
     // nlohmann counts the byte after the offending one; point at the offending one.
     const std::size_t byte = error.byte > 0 ? error.byte - 1 : 0;
     return invalid_argument("the body is not valid JSON", text_position(text, byte));
+  } catch (const Json::exception& error) {
+    // Well formed, but not representable: a number beyond the range of a double.
+    return invalid_argument(std::string("the body is not valid JSON: ") + error.what(), "body");
   }
   if (!value.is_object()) return invalid_argument("the body must be a JSON object", "body");
   return value;

@@ -56,6 +56,9 @@ void read_geojson(const fs::path& path, const std::string& text, const SourceOpt
   } catch (const Json::parse_error& error) {
     problems.push_back({name + ": " + json_error_place(error, text), "not valid JSON"});
     return;
+  } catch (const Json::exception& error) {  // e.g. a number beyond the range of a double
+    problems.push_back({name, std::string("not valid JSON: ") + error.what()});
+    return;
   }
   if (!root.is_object() || !root.contains("type") || !root["type"].is_string()) {
     problems.push_back({name, "not GeoJSON: the top level must be an object with a \"type\""});
@@ -164,6 +167,9 @@ void read_wkt_lines(const fs::path& path, const std::string& text, const std::fu
           shape.metadata = Json::parse(fields[2]);
         } catch (const Json::parse_error& error) {
           problems.push_back({where, "the metadata column is not valid JSON (column byte " + std::to_string(error.byte) + ")"});
+          return;
+        } catch (const Json::exception& error) {
+          problems.push_back({where, std::string("the metadata column is not valid JSON: ") + error.what()});
           return;
         }
         if (!shape.metadata.is_object()) {
@@ -285,6 +291,9 @@ void read_ndjson(const fs::path& path, const std::string& text, const std::funct
       object = Json::parse(line);
     } catch (const Json::parse_error& error) {
       problems.push_back({where + ", column " + std::to_string(error.byte), "not valid JSON"});
+      return;
+    } catch (const Json::exception& error) {
+      problems.push_back({where, std::string("not valid JSON: ") + error.what()});
       return;
     }
     if (!object.is_object() || !object.contains("id") || !object["id"].is_string() || !object.contains("geometry")) {

@@ -21,6 +21,11 @@ Result<Json> parse_json_text(std::string_view text) {
     std::string message = error.what();
     if (auto colon = message.rfind(": "); colon != std::string::npos) message = message.substr(colon + 2);
     return invalid_argument("invalid JSON: " + message, detail::TextCursor(text).where_at(byte));
+  } catch (const Json::exception& error) {
+    // Not a syntax error: a number beyond the range of a double (out_of_range.406), say.
+    std::string message = error.what();
+    if (auto bracket = message.find("] "); bracket != std::string::npos) message = message.substr(bracket + 2);
+    return invalid_argument("invalid JSON: " + message, "json");
   }
 }
 
