@@ -116,6 +116,10 @@ Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory,
   rocksdb::Options options;
   options.create_if_missing = create;
   options.paranoid_checks = true;
+  // A write-ahead log damaged in the middle must stop the open with an error: RocksDB's default
+  // (point-in-time recovery) would silently drop every acknowledged write after the damage. A
+  // torn last record, which a crash can leave, is still tolerated: it was never acknowledged.
+  options.wal_recovery_mode = rocksdb::WALRecoveryMode::kTolerateCorruptedTailRecords;
   // Queries read a record per candidate: a block cache shared by every collection of the
   // process keeps hot records in memory (RocksDB's default is 8 MB per database). 512 MB,
   // common practice for a dedicated server (no source); the OS page cache backs it.
