@@ -3,8 +3,10 @@
 // (that is, once it is durable). The parent kills this process with SIGKILL at random moments.
 // With "refit" as a third argument, a second thread refits the landmarks over and over
 // meanwhile, so kills also land during re-sketching and generation switches (ingest then
-// stops at 2000 shapes).
-// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER [refit]
+// stops at 2000 shapes). With "graph", the collection is a graph (HNSW) one whose approximate
+// index is rebuilt and its snapshot rewritten after every few batches, so kills also land
+// during index builds and snapshot writes.
+// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER [refit|graph]
 #include <cstdio>
 #include <cstdlib>
 #include <string>
@@ -20,12 +22,20 @@ using namespace waymark;
 int main(int argc, char** argv) {
   if (argc != 3 && argc != 4) return 2;
   const bool refit = argc == 4 && std::string(argv[3]) == "refit";
+  const bool graph = argc == 4 && std::string(argv[3]) == "graph";
   const std::string directory = argv[1];
   std::size_t next = std::strtoull(argv[2], nullptr, 10);
-  Result<std::unique_ptr<Collection>> collection = Collection::open(directory);
+  ApproximateIndexSettings approximate;
+  if (graph) {
+    approximate.minimum_size = 200;
+    approximate.rebuild_fraction = 0.05;
+  }
+  Result<std::unique_ptr<Collection>> collection = Collection::open(directory, approximate);
   if (!collection) {
     CollectionSettings settings;
     settings.landmarks = *grid_landmarks(unit_frame_domain(), 32);
+    if (graph) settings.index_kind = IndexKind::graph;
+    settings.approximate = approximate;
     collection = Collection::create(directory, settings);
   }
   if (!collection) {
