@@ -539,6 +539,11 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   Catalog* catalog = context.catalog;
 
   if (pattern == "/healthz") return json_response(200, {{"status", "up"}});
+  // Writes that add data wait for disk space; deletions free it. A bulk load checks before each
+  // of its batches instead, so it can report how far it got.
+  if (context.route->access == Access::write && method != "DELETE" && !context.route->is_bulk) {
+    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
+  }
   if (pattern == "/" || pattern == "/ui/{file}") return web_asset_response(pattern == "/" ? "index.html" : context.parameters.at("file"));
   if (pattern == "/readyz") return json_response(200, {{"status", "ready"}, {"collections", catalog->list().size()}});
   if (pattern == "/metrics") {
@@ -606,7 +611,6 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   const std::string& name = context.parameters.at("name");
   if (Status s = Catalog::check_name(name); !s.is_ok()) return from_status(s);
   if (pattern == "/v1/collections/{name}" && method == "PUT") {
-    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, true);
     if (!body) return from_status(body.status());
     Result<CollectionSettings> settings = settings_from(*body, config_);
@@ -627,7 +631,6 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   Collection& collection = **found;
   if (pattern == "/v1/collections/{name}") return json_response(200, describe(name, collection));
   if (pattern == "/v1/collections/{name}/refit") {
-    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, true);
     if (!body) return from_status(body.status());
     Result<RefitOptions> options = refit_options_from(*body);
@@ -658,7 +661,6 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       if (Status s = collection.remove(ids); !s.is_ok()) return from_status(s);
       return json_response(200, {{"id", id}, {"deleted", true}});
     }
-    if (Status s = check_free_space(config_); !s.is_ok()) return from_status(s);
     Result<Json> body = parse_object(request.body, false);
     if (!body) return from_status(body.status());
     if (Status s = check_known_fields(*body, {"geometry", "metadata"}); !s.is_ok()) return from_status(s);

@@ -107,7 +107,8 @@ ssize_t writev(int fd, const struct iovec* vectors, int count) {
 
 int fallocate(int fd, int mode, off_t offset, off_t length) {
   NEXT(fallocate, int (*)(int, int, off_t, off_t));
-  if (limit_for("full") >= 0 && under_directory(fd) && bytes_written.load() + static_cast<long long>(length) > limit_for("full")) {
+  const long long limit = limit_for("full");
+  if (limit >= 0 && under_directory(fd) && bytes_written.load() + static_cast<long long>(length) > limit) {
     errno = ENOSPC;
     return -1;
   }
