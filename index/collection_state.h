@@ -51,10 +51,12 @@ struct StoredShape {
 
 struct Collection::State {
   std::string directory;
-  CollectionSettings settings;  // settings.landmarks is the current generation's; guarded by labels_mutex
+  // Fixed at open except settings.landmarks (the current generation's, replaced by a refit under
+  // labels_mutex): the other fields are read without a lock and must never be assigned again.
+  CollectionSettings settings;
   std::unique_ptr<rocksdb::DB> database;
 
-  mutable std::shared_mutex labels_mutex;  // guards the maps, next_label, settings and `current`
+  mutable std::shared_mutex labels_mutex;  // guards the maps, next_label, settings.landmarks and `current`
   std::shared_ptr<Generation> current;
   std::unordered_map<std::string, std::int64_t> label_of_id;
   std::unordered_map<std::int64_t, std::string> id_of_label;

@@ -153,7 +153,7 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
       return s;
     }
     std::unique_lock lock(state.labels_mutex);
-    state.settings = std::move(settings);
+    state.settings.landmarks = std::move(settings.landmarks);  // the rest is read without the lock
     state.current = next;
     state.pending.reset();
     state.pending_covered_up_to.clear();

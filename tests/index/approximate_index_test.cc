@@ -79,7 +79,7 @@ TEST_CASE("ApproximateKindsFindTheNearestShapesAndStayExactInExactMode") {
   }
 }
 
-TEST_CASE("ApproximateKindsSeeFreshWritesAtOnceAndNeverReturnDeletedShapes") {
+TEST_CASE("ApproximateKindsSeeFreshWritesAtOnceAndNeverReturnDeletedShapes", "[concurrency]") {
   for (IndexKind kind : {IndexKind::graph, IndexKind::partitioned}) {
     INFO(index_kind_name(kind));
     TemporaryDirectory directory;
@@ -128,7 +128,7 @@ TEST_CASE("ApproximateKindsSeeFreshWritesAtOnceAndNeverReturnDeletedShapes") {
   }
 }
 
-TEST_CASE("ApproximateIndexIsBuiltInTheBackgroundAndTheKindSurvivesRestart") {
+TEST_CASE("ApproximateIndexIsBuiltInTheBackgroundAndTheKindSurvivesRestart", "[concurrency]") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(800, 66);
   {
@@ -167,7 +167,7 @@ TEST_CASE("ApproximateIndexIsBuiltInTheBackgroundAndTheKindSurvivesRestart") {
 // The snapshot written after each build is loaded by the next open and caught up with the
 // store (writes since it become fresh, deletions tombstones); a damaged or stale one is
 // reported and the index rebuilt, never trusted.
-TEST_CASE("ApproximateIndexSnapshotIsLoadedCaughtUpAndRebuiltWhenDamaged") {
+TEST_CASE("ApproximateIndexSnapshotIsLoadedCaughtUpAndRebuiltWhenDamaged", "[concurrency]") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(1200, 67);
   ApproximateIndexSettings manual;

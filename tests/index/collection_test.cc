@@ -272,7 +272,7 @@ TEST_CASE("StatisticsAndDefaultMetricSurviveRestart") {
 // Queries run while another thread ingests, upserts and deletes. Every answer must be
 // internally right: each hit's distance is the exact distance to what is stored under its id
 // (or the id was deleted or replaced meanwhile), and hits are in order.
-TEST_CASE("QueriesRunCorrectlyDuringIngest") {
+TEST_CASE("QueriesRunCorrectlyDuringIngest", "[concurrency]") {
   TemporaryDirectory directory;
   Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings_with(32));
   REQUIRE(created.is_ok());

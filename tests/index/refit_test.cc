@@ -51,7 +51,7 @@ void require_exact_equals_full_scan(const Collection& collection, const std::vec
 
 }  // namespace
 
-TEST_CASE("RefitSwitchesToAFittedGenerationThatSurvivesRestart") {
+TEST_CASE("RefitSwitchesToAFittedGenerationThatSurvivesRestart", "[concurrency]") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(800, 41);
   {
@@ -83,7 +83,7 @@ TEST_CASE("RefitSwitchesToAFittedGenerationThatSurvivesRestart") {
   require_exact_equals_full_scan(**reopened, records, 43);
 }
 
-TEST_CASE("CancelledRefitKeepsTheOldGeneration") {
+TEST_CASE("CancelledRefitKeepsTheOldGeneration", "[concurrency]") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(300, 44);
   {
@@ -116,7 +116,7 @@ TEST_CASE("RefitNeedsTwoStoredShapes") {
 // right (hits are at their exact distance, in order, and exact answers certified), and after
 // the switch every shape — also those written during the refit — has a sketch of the new
 // generation equal to a fresh sketch of its shape.
-TEST_CASE("WritesAndQueriesDuringRefitStayConsistent") {
+TEST_CASE("WritesAndQueriesDuringRefitStayConsistent", "[concurrency]") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(2400, 46);
   Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings_with(32));

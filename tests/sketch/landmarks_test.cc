@@ -192,7 +192,7 @@ TEST_CASE("FittedWeightsEstimateTheCandidateMean") {
   CHECK(ratio_sum / fits == Approx(1).epsilon(0.05));
 }
 
-TEST_CASE("SketcherIsSafeToShareBetweenThreads") {
+TEST_CASE("SketcherIsSafeToShareBetweenThreads", "[concurrency]") {
   // Four threads sketch the same shapes through one Sketcher (thread-local scratch buffers);
   // every result must equal the single-threaded one. ThreadSanitizer runs would flag races.
   Result<LandmarkSet> set = random_landmarks({-2, -2, 12, 12}, 64, 12);
