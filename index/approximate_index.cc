@@ -166,70 +166,134 @@ namespace {
 
 constexpr char kSnapshotMagic[8] = {'W', 'M', 'A', 'P', 'P', 'R', 'X', '1'};
 
-void append_u64(std::string& out, std::uint64_t value) { out.append(reinterpret_cast<const char*>(&value), 8); }
+std::string_view as_bytes(const void* data, std::size_t size) { return {static_cast<const char*>(data), size}; }
+
+// FAISS serialises through an IOWriter; these two pass its pieces on. The first only counts
+// (the file states the FAISS part's length before it), the second checksums and forwards.
+struct CountingWriter : faiss::IOWriter {
+  std::uint64_t bytes = 0;
+  size_t operator()(const void*, size_t size, size_t items) override {
+    bytes += size * items;
+    return items;
+  }
+};
+
+struct ForwardingWriter : faiss::IOWriter {
+  explicit ForwardingWriter(const std::function<Status(std::string_view)>& sink, std::uint64_t& checksum)
+      : sink(sink), checksum(checksum) {}
+  size_t operator()(const void* data, size_t size, size_t items) override {
+    if (!failure.is_ok()) return 0;
+    const std::string_view piece = as_bytes(data, size * items);
+    checksum = fnv1a64(piece, checksum);
+    failure = sink(piece);
+    return failure.is_ok() ? items : 0;  // FAISS then throws; the caller reports `failure`
+  }
+  const std::function<Status(std::string_view)>& sink;
+  std::uint64_t& checksum;
+  Status failure;
+};
+
+// Reads at most `remaining` bytes of `in` for FAISS: a damaged length can never make it read
+// past the part of the file that is its own.
+struct BoundedReader : faiss::IOReader {
+  BoundedReader(std::istream& in, std::uint64_t remaining) : in(in), remaining(remaining) {}
+  size_t operator()(void* data, size_t size, size_t items) override {
+    if (size == 0) return items;
+    const std::uint64_t wanted = std::min<std::uint64_t>(items, remaining / size);
+    in.read(static_cast<char*>(data), static_cast<std::streamsize>(wanted * size));
+    const std::uint64_t got = static_cast<std::uint64_t>(in.gcount()) / size;
+    remaining -= got * size;
+    return got;
+  }
+  std::istream& in;
+  std::uint64_t remaining;
+};
 
 }  // namespace
 
-Result<std::string> ApproximateIndex::snapshot(std::uint64_t generation) const {
+Status ApproximateIndex::write_snapshot(std::uint64_t generation, const ByteSink& sink) const {
   std::shared_lock lock(mutex_);
   if (!built_) return Status(StatusCode::failed_precondition, "the approximate index is not built");
-  faiss::VectorIOWriter writer;
+  std::uint64_t checksum = kFnv1a64OffsetBasis;
+  auto put = [&](std::string_view piece) {
+    checksum = fnv1a64(piece, checksum);
+    return sink(piece);
+  };
+  auto put_u64 = [&](std::uint64_t value) { return put(as_bytes(&value, sizeof value)); };
+  CountingWriter counter;
+  ForwardingWriter forward(sink, checksum);
   try {
-    faiss::write_index(built_.get(), &writer);
+    faiss::write_index(built_.get(), &counter);
+    Status status = put(as_bytes(kSnapshotMagic, sizeof kSnapshotMagic));
+    for (std::uint64_t value : {static_cast<std::uint64_t>(kind_), generation, std::uint64_t{partitions_},
+                                std::uint64_t{label_of_row_.size()}}) {
+      if (status.is_ok()) status = put_u64(value);
+    }
+    if (status.is_ok()) status = put(as_bytes(label_of_row_.data(), label_of_row_.size() * sizeof(std::int64_t)));
+    if (status.is_ok()) status = put_u64(counter.bytes);
+    if (!status.is_ok()) return status;
+    faiss::write_index(built_.get(), &forward);
   } catch (const std::exception& error) {
-    return from_exception(error);
+    return forward.failure.is_ok() ? from_exception(error) : forward.failure;
   }
-  std::string out(kSnapshotMagic, sizeof kSnapshotMagic);
-  append_u64(out, static_cast<std::uint64_t>(kind_));
-  append_u64(out, generation);
-  append_u64(out, partitions_);
-  append_u64(out, label_of_row_.size());
-  out.append(reinterpret_cast<const char*>(label_of_row_.data()), label_of_row_.size() * sizeof(std::int64_t));
-  append_u64(out, writer.data.size());
-  out.append(reinterpret_cast<const char*>(writer.data.data()), writer.data.size());
-  append_u64(out, fnv1a64(out));
-  return out;
+  if (!forward.failure.is_ok()) return forward.failure;
+  return sink(as_bytes(&checksum, sizeof checksum));
 }
 
-Status ApproximateIndex::restore(std::string_view bytes, std::uint64_t generation, const VectorIndex::Contents& all) {
+Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, const VectorIndex::Contents& all) {
   auto damaged = [](const std::string& what) {
     return Status(StatusCode::data_loss, "approximate index snapshot is damaged: " + what);
   };
-  std::size_t offset = 0;
-  auto read_u64 = [&](std::uint64_t& value) {
-    if (bytes.size() - offset < 8) return false;
-    std::memcpy(&value, bytes.data() + offset, 8);
-    offset += 8;
-    return true;
-  };
-  if (bytes.size() < sizeof kSnapshotMagic + 8 || std::memcmp(bytes.data(), kSnapshotMagic, sizeof kSnapshotMagic) != 0) {
-    return damaged("not a snapshot (magic)");
+  in.seekg(0, std::ios::end);
+  const std::streamoff end = in.tellg();
+  if (!in || end < static_cast<std::streamoff>(sizeof kSnapshotMagic + 8)) return damaged("not a snapshot (size)");
+  const std::uint64_t body_size = static_cast<std::uint64_t>(end) - 8;
+  // First pass: the checksum over everything before its own 8 bytes.
+  in.seekg(0);
+  std::uint64_t checksum = kFnv1a64OffsetBasis;
+  std::string chunk(1 << 20, '\0');
+  for (std::uint64_t left = body_size; left > 0;) {
+    const std::size_t take = static_cast<std::size_t>(std::min<std::uint64_t>(left, chunk.size()));
+    if (!in.read(chunk.data(), static_cast<std::streamsize>(take))) return damaged("unreadable");
+    checksum = fnv1a64(std::string_view(chunk.data(), take), checksum);
+    left -= take;
   }
   std::uint64_t stored_checksum = 0;
-  std::memcpy(&stored_checksum, bytes.data() + bytes.size() - 8, 8);
-  if (fnv1a64(bytes.substr(0, bytes.size() - 8)) != stored_checksum) return damaged("checksum mismatch");
-  bytes.remove_suffix(8);
-  offset = sizeof kSnapshotMagic;
+  if (!in.read(reinterpret_cast<char*>(&stored_checksum), 8)) return damaged("unreadable");
+  if (checksum != stored_checksum) return damaged("checksum mismatch");
+  chunk = std::string();
+
+  in.seekg(0);
+  std::uint64_t offset = 0;
+  auto read_exactly = [&](void* data, std::uint64_t size) {
+    if (body_size - offset < size || !in.read(static_cast<char*>(data), static_cast<std::streamsize>(size))) return false;
+    offset += size;
+    return true;
+  };
+  char magic[sizeof kSnapshotMagic];
+  if (!read_exactly(magic, sizeof magic) || std::memcmp(magic, kSnapshotMagic, sizeof magic) != 0) {
+    return damaged("not a snapshot (magic)");
+  }
   std::uint64_t kind = 0, snapshot_generation = 0, partitions = 0, count = 0, faiss_size = 0;
-  if (!read_u64(kind) || !read_u64(snapshot_generation) || !read_u64(partitions) || !read_u64(count)) {
+  if (!read_exactly(&kind, 8) || !read_exactly(&snapshot_generation, 8) || !read_exactly(&partitions, 8) ||
+      !read_exactly(&count, 8)) {
     return damaged("truncated header");
   }
   if (kind != static_cast<std::uint64_t>(kind_) || snapshot_generation != generation) {
     return Status(StatusCode::failed_precondition, "snapshot is of another index kind or landmark generation");
   }
-  if (count > (bytes.size() - offset) / sizeof(std::int64_t)) return damaged("label count exceeds the file");
+  if (count > (body_size - offset) / sizeof(std::int64_t)) return damaged("label count exceeds the file");
   std::vector<std::int64_t> labels(count);
-  std::memcpy(labels.data(), bytes.data() + offset, count * sizeof(std::int64_t));
-  offset += count * sizeof(std::int64_t);
-  if (!read_u64(faiss_size) || faiss_size != bytes.size() - offset) return damaged("index length");
-  faiss::VectorIOReader reader;
-  reader.data.assign(bytes.begin() + static_cast<std::ptrdiff_t>(offset), bytes.end());
+  if (!read_exactly(labels.data(), count * sizeof(std::int64_t))) return damaged("truncated labels");
+  if (!read_exactly(&faiss_size, 8) || faiss_size != body_size - offset) return damaged("index length");
+  BoundedReader reader(in, faiss_size);
   std::unique_ptr<faiss::Index> index;
   try {
     index.reset(faiss::read_index(&reader));
   } catch (const std::exception& error) {
     return damaged(error.what());
   }
+  if (reader.remaining != 0) return damaged("index length");
   if (static_cast<std::uint64_t>(index->ntotal) != count || static_cast<std::size_t>(index->d) != root_weights_.size()) {
     return damaged("index size or dimension does not match its labels");
   }

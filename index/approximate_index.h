@@ -18,6 +18,8 @@
 
 #include <atomic>
 #include <cstdint>
+#include <functional>
+#include <istream>
 #include <memory>
 #include <shared_mutex>
 #include <span>
@@ -82,14 +84,19 @@ class ApproximateIndex {
   // `count` from the fresh index (L∞ order). failed_precondition when nothing is built.
   Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count) const;
 
-  // The built index as a snapshot file's bytes (index/STORE_FORMAT.md, "Approximate index
-  // snapshot"), tagged with `generation`; failed_precondition when nothing is built.
-  Result<std::string> snapshot(std::uint64_t generation) const;
-  // Replaces the built index with a snapshot written for `generation`, then catches up with
-  // `all` (the exhaustive index as stored now): stored vectors the snapshot lacks become
-  // fresh, snapshot vectors no longer stored become tombstones. data_loss for a damaged file,
-  // failed_precondition for one of another kind or generation; nothing changes then.
-  Status restore(std::string_view bytes, std::uint64_t generation, const VectorIndex::Contents& all);
+  // Streams the built index as a snapshot file (index/STORE_FORMAT.md, "Approximate index
+  // snapshot"), tagged with `generation`, to `sink` in pieces: no copy of the whole file is
+  // ever held (a graph of a million shapes is hundreds of MB). Writers wait while it runs.
+  // failed_precondition when nothing is built; the sink's first error otherwise.
+  using ByteSink = std::function<Status(std::string_view)>;
+  Status write_snapshot(std::uint64_t generation, const ByteSink& sink) const;
+  // Replaces the built index with a snapshot written for `generation`, read from `in` (which
+  // must be seekable: the checksum is verified in a first pass, before anything is parsed),
+  // then catches up with `all` (the exhaustive index as stored now): stored vectors the
+  // snapshot lacks become fresh, snapshot vectors no longer stored become tombstones.
+  // data_loss for a damaged file, failed_precondition for one of another kind or generation;
+  // nothing changes then.
+  Status restore(std::istream& in, std::uint64_t generation, const VectorIndex::Contents& all);
   // Records how the last open went (ApproximateIndexStatus::snapshot).
   void set_snapshot_note(std::string note);
   std::int64_t largest_label() const;  // in the built index; 0 when none

@@ -112,6 +112,14 @@ Result<Manifest> parse_manifest(const std::string& text) {
   return manifest;
 }
 
+// Queries read a record per candidate: a block cache shared by every collection of the process
+// keeps hot records in memory (RocksDB's default is 8 MB per database). 512 MB, common practice
+// for a dedicated server (no source); the OS page cache backs it.
+const std::shared_ptr<rocksdb::Cache>& shared_block_cache() {
+  static const std::shared_ptr<rocksdb::Cache> cache = rocksdb::NewLRUCache(512ull << 20);
+  return cache;
+}
+
 Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory, bool create) {
   rocksdb::Options options;
   options.create_if_missing = create;
@@ -120,12 +128,8 @@ Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory,
   // (point-in-time recovery) would silently drop every acknowledged write after the damage. A
   // torn last record, which a crash can leave, is still tolerated: it was never acknowledged.
   options.wal_recovery_mode = rocksdb::WALRecoveryMode::kTolerateCorruptedTailRecords;
-  // Queries read a record per candidate: a block cache shared by every collection of the
-  // process keeps hot records in memory (RocksDB's default is 8 MB per database). 512 MB,
-  // common practice for a dedicated server (no source); the OS page cache backs it.
-  static const std::shared_ptr<rocksdb::Cache> shared_block_cache = rocksdb::NewLRUCache(512ull << 20);
   rocksdb::BlockBasedTableOptions table;
-  table.block_cache = shared_block_cache;
+  table.block_cache = shared_block_cache();
   options.table_factory.reset(rocksdb::NewBlockBasedTableFactory(table));
   rocksdb::DB* raw = nullptr;
   if (Status s = from_rocksdb(rocksdb::DB::Open(options, directory, &raw), "opening '" + directory + "'"); !s.is_ok()) {
@@ -254,9 +258,14 @@ Status Collection::State::build_approximate_index_if_due() {
   }
   if (Status s = generation->approximate->build(copy); !s.is_ok()) return s;
   // Saved so that the next open need not rebuild (a graph takes minutes at a million shapes).
-  Result<std::string> bytes = generation->approximate->snapshot(generation->number());
-  if (!bytes) return bytes.status();
-  return write_file_atomically(approximate_snapshot_path(), *bytes);
+  Result<AtomicFileWriter> file = AtomicFileWriter::create(approximate_snapshot_path());
+  if (!file) return file.status();
+  if (Status s = generation->approximate->write_snapshot(
+          generation->number(), [&](std::string_view piece) { return file->append(piece); });
+      !s.is_ok()) {
+    return s;
+  }
+  return file->commit();
 }
 
 namespace {
@@ -266,8 +275,7 @@ void restore_approximate_index(Collection::State& state) {
   Generation& generation = *state.current;
   std::ifstream in(state.approximate_snapshot_path(), std::ios::binary);
   if (!in) return;  // none yet: the builder makes one when due
-  const std::string bytes((std::istreambuf_iterator<char>(in)), std::istreambuf_iterator<char>());
-  const Status restored = generation.approximate->restore(bytes, generation.number(), generation.index.copy());
+  const Status restored = generation.approximate->restore(in, generation.number(), generation.index.copy());
   generation.approximate->set_snapshot_note(restored.is_ok() ? "loaded" : "rebuilding: " + restored.message());
   // Labels are never reused, also not those that only the snapshot still remembers.
   state.next_label = std::max(state.next_label, generation.approximate->largest_label() + 1);
@@ -300,6 +308,12 @@ Collection::~Collection() {
 }
 
 Status Collection::build_approximate_index_now() { return state_->build_approximate_index_if_due(); }
+
+Status Collection::compact_store() {
+  rocksdb::CompactRangeOptions options;
+  options.bottommost_level_compaction = rocksdb::BottommostLevelCompaction::kForce;  // rewrite even one file
+  return from_rocksdb(state_->database->CompactRange(options, nullptr, nullptr), "compacting the store");
+}
 
 CollectionSettings Collection::settings() const {
   std::shared_lock lock(state_->labels_mutex);
@@ -625,6 +639,10 @@ Result<std::vector<ShapeRecord>> Collection::list(const std::string& after, std:
   return page;
 }
 
+std::size_t shared_block_cache_bytes() { return shared_block_cache()->GetUsage(); }
+std::size_t shared_block_cache_capacity() { return shared_block_cache()->GetCapacity(); }
+void set_shared_block_cache_capacity(std::size_t bytes) { shared_block_cache()->SetCapacity(bytes); }
+
 CollectionStatistics Collection::statistics() const {
   CollectionStatistics statistics;
   {
@@ -639,10 +657,13 @@ CollectionStatistics Collection::statistics() const {
                              (generation.approximate ? generation.approximate->memory_bytes() : 0) + 2 * id_bytes +
                              statistics.shape_count * 2 * (sizeof(std::string) + sizeof(std::int64_t) + 4 * sizeof(void*));
   }
-  std::uint64_t sst = 0, memtables = 0;
+  std::uint64_t sst = 0, memtables = 0, table_readers = 0;
   state_->database->GetIntProperty(rocksdb::DB::Properties::kLiveSstFilesSize, &sst);
   state_->database->GetIntProperty(rocksdb::DB::Properties::kCurSizeAllMemTables, &memtables);
+  state_->database->GetIntProperty(rocksdb::DB::Properties::kEstimateTableReadersMem, &table_readers);
   statistics.store_bytes = sst + memtables;
+  statistics.memtable_bytes = memtables;
+  statistics.table_reader_bytes = table_readers;
   std::string value;
   if (state_->database->Get(rocksdb::ReadOptions(), kLastWriteKey, &value).ok() && value.size() == 8) {
     std::uint64_t ms = 0;

@@ -133,8 +133,17 @@ struct CollectionStatistics {
   ApproximateIndexStatus approximate;  // all zero for exhaustive collections
   std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
   std::size_t store_bytes = 0;          // RocksDB files on disk and memtables (estimate)
+  std::size_t memtable_bytes = 0;       // of which memtables: writes not yet flushed, in memory
+  std::size_t table_reader_bytes = 0;   // RocksDB's in-memory index and filter blocks of its files
   std::int64_t last_write_unix_ms = 0;  // 0 when nothing was ever written
 };
+
+// Bytes held now by the block cache that every collection of this process shares (store blocks
+// read by queries, least recently used first out), and its capacity.
+std::size_t shared_block_cache_bytes();
+std::size_t shared_block_cache_capacity();
+// Sets that capacity (512 MiB until set); shrinking evicts at once. Thread-safe.
+void set_shared_block_cache_capacity(std::size_t bytes);
 
 class Collection {
  public:
@@ -179,6 +188,11 @@ class Collection {
   // Graph and partitioned collections build their approximate index on a background thread;
   // this builds it now if one is due and waits (tests, benchmarks). No-op for exhaustive ones.
   Status build_approximate_index_now();
+  // Rewrites the store's files now (a flush, then a compaction of every key): the space of
+  // replaced and deleted shapes is reclaimed at once instead of whenever RocksDB gets to it.
+  // Takes time in proportion to the store; reads and writes go on meanwhile. A crash part-way
+  // leaves the store as it was (RocksDB switches to the new files in one manifest write).
+  Status compact_store();
 
   // Fits a new landmark generation and re-sketches every stored shape into it, then switches
   // to it in one durable write; returns the new generation number. Blocks for O(n) sketches:

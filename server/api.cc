@@ -551,12 +551,14 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
     if (catalog) {
       for (const auto& [name, collection] : catalog->list()) {
         const CollectionStatistics statistics = collection->statistics();
-        gauges.push_back({name, statistics.shape_count, statistics.index_bytes, statistics.store_bytes});
+        gauges.push_back({name, statistics.shape_count, statistics.index_bytes, statistics.store_bytes,
+                          statistics.memtable_bytes, statistics.table_reader_bytes});
       }
     }
     HttpResponse response;
     response.content_type = "text/plain; version=0.0.4";
-    response.body = metrics_.exposition(gauges);
+    response.body = metrics_.exposition(gauges, {resident_memory_bytes(), shared_block_cache_bytes(),
+                                                 shared_block_cache_capacity()});
     return response;
   }
   if (pattern == "/v1/collections") {

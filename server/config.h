@@ -32,6 +32,9 @@ struct ServerConfig {
   // Writes are refused (507) while the data directory's file system has less free space than
   // this; 0 turns the check off. RocksDB is not safe to drive into ENOSPC (see README Security).
   std::uint64_t min_free_disk_bytes = 0;
+  // Capacity of the store's block cache, shared by every collection: the bound on the memory
+  // that query reads keep (index and id maps come on top, in proportion to the shapes stored).
+  std::size_t block_cache_bytes = 0;
   std::size_t bulk_batch_size = 0;      // shapes per durable batch during bulk ingest
   std::size_t max_vertices = 0;         // per shape, for new collections and for queries
   std::size_t max_k = 0;

@@ -8,6 +8,7 @@
 #include <cstdlib>
 #include <thread>
 
+#include "index/collection.h"
 #include "server/api.h"
 #include "server/http_server.h"
 
@@ -82,6 +83,7 @@ int main(int argc, char** argv) {
       ApproximateIndexSettings approximate;
       approximate.minimum_size = config->approximate_index_minimum_size;
       approximate.rebuild_fraction = static_cast<double>(config->approximate_index_rebuild_percent) / 100;
+      set_shared_block_cache_capacity(config->block_cache_bytes);
       Result<std::unique_ptr<Catalog>> catalog = Catalog::open(config->data_directory, approximate);
       if (!catalog) {
         spdlog::critical("cannot open the data directory '{}': {}", config->data_directory,

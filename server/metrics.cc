@@ -1,5 +1,8 @@
 #include "server/metrics.h"
 
+#include <unistd.h>
+
+#include <fstream>
 #include <sstream>
 
 namespace waymark::server {
@@ -56,7 +59,14 @@ void Metrics::set_queries_waiting(std::size_t count) {
   queries_waiting_ = count;
 }
 
-std::string Metrics::exposition(const std::vector<CollectionGauges>& collections) const {
+std::size_t resident_memory_bytes() {
+  std::ifstream statm("/proc/self/statm");
+  std::size_t total_pages = 0, resident_pages = 0;
+  if (!(statm >> total_pages >> resident_pages)) return 0;
+  return resident_pages * static_cast<std::size_t>(::sysconf(_SC_PAGESIZE));
+}
+
+std::string Metrics::exposition(const std::vector<CollectionGauges>& collections, const ProcessGauges& process) const {
   std::lock_guard lock(mutex_);
   std::ostringstream out;
   out.precision(10);
@@ -105,6 +115,15 @@ std::string Metrics::exposition(const std::vector<CollectionGauges>& collections
                  &CollectionGauges::index_bytes);
   per_collection("waymark_collection_store_bytes", "Store files and memtables, by collection.",
                  &CollectionGauges::store_bytes);
+  per_collection("waymark_collection_memtable_bytes", "Store writes not yet flushed to files, in memory, by collection.",
+                 &CollectionGauges::memtable_bytes);
+  per_collection("waymark_collection_table_reader_bytes", "Store file indexes and filters in memory, by collection.",
+                 &CollectionGauges::table_reader_bytes);
+  single("process_resident_memory_bytes", "gauge", "Resident memory of waymarkd.", process.resident_bytes);
+  single("waymark_block_cache_bytes", "gauge", "Store blocks held by the block cache all collections share.",
+         process.block_cache_bytes);
+  single("waymark_block_cache_capacity_bytes", "gauge", "Capacity of the shared block cache.",
+         process.block_cache_capacity_bytes);
   return out.str();
 }
 

@@ -18,6 +18,18 @@ struct CollectionGauges {
   std::size_t shapes = 0;
   std::size_t index_bytes = 0;
   std::size_t store_bytes = 0;
+  std::size_t memtable_bytes = 0;
+  std::size_t table_reader_bytes = 0;
+};
+
+// Resident memory of this process (Linux /proc/self/statm); 0 where unavailable.
+std::size_t resident_memory_bytes();
+
+// Process-wide memory figures for /metrics: what the soak and operators watch for growth.
+struct ProcessGauges {
+  std::size_t resident_bytes = 0;            // from /proc/self/statm; 0 where unavailable
+  std::size_t block_cache_bytes = 0;         // the store's shared block cache
+  std::size_t block_cache_capacity_bytes = 0;
 };
 
 struct QueryCounts {
@@ -36,7 +48,7 @@ class Metrics {
   void record_query(const QueryCounts& counts);
   void set_queries_waiting(std::size_t count);
 
-  std::string exposition(const std::vector<CollectionGauges>& collections) const;
+  std::string exposition(const std::vector<CollectionGauges>& collections, const ProcessGauges& process) const;
 
   static constexpr std::array<double, 14> kBucketBounds = {0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05,
                                                           0.1,    0.25,  0.5,    1,     2.5,   5,    10};

@@ -3,6 +3,8 @@
 // write_file_atomically(path, bytes): writes path + ".tmp", fsyncs it, renames it over path
 // and fsyncs the parent directory. After it returns ok, a crash leaves the new contents;
 // before, the old file (or none) — never a partial one. io_error names the step that failed.
+// AtomicFileWriter does the same for a file produced in pieces, so that a large file (an index
+// snapshot of a million shapes is hundreds of MB) never has to be held in memory whole.
 // sync_parent_directory(path): makes a rename or creation inside path's directory durable.
 // POSIX only.
 #pragma once
@@ -16,10 +18,38 @@
 namespace waymark {
 
 Status write_file_atomically(const std::string& path, std::string_view bytes);
+
+class AtomicFileWriter {
+ public:
+  // Creates path + ".tmp" (truncating a leftover one); io_error if it cannot.
+  static Result<AtomicFileWriter> create(const std::string& path);
+  AtomicFileWriter(AtomicFileWriter&& other) noexcept;
+  AtomicFileWriter& operator=(AtomicFileWriter&&) = delete;
+  // Without a successful commit(): closes and removes the temporary file; path is untouched.
+  ~AtomicFileWriter();
+
+  // Buffered (1 MiB); io_error (e.g. a full disk) names the file. After an error, every later
+  // call fails the same way.
+  Status append(std::string_view bytes);
+  // Flushes, fsyncs, renames over path, fsyncs the directory. Once only.
+  Status commit();
+
+ private:
+  explicit AtomicFileWriter(std::string path, int descriptor);
+  Status write_through(std::string_view bytes);
+
+  std::string path_;
+  int descriptor_ = -1;
+  std::string buffer_;
+  Status failure_;
+  bool committed_ = false;
+};
 Status sync_parent_directory(const std::string& path);
 
 // FNV-1a (64-bit) of `bytes`: the checksum our own file formats end with. O(n). Detects
-// accidental damage (truncation, flipped bytes), not tampering.
-std::uint64_t fnv1a64(std::string_view bytes);
+// accidental damage (truncation, flipped bytes), not tampering. Pass the hash of the bytes
+// before as `hash` to checksum a file in pieces: fnv1a64(b, fnv1a64(a)) == fnv1a64(a + b).
+constexpr std::uint64_t kFnv1a64OffsetBasis = 0xcbf29ce484222325ull;
+std::uint64_t fnv1a64(std::string_view bytes, std::uint64_t hash = kFnv1a64OffsetBasis);
 
 }  // namespace waymark

@@ -2,12 +2,13 @@
 // A damaged snapshot must be refused with a Status, never crash: restore() is what a restart
 // runs on whatever the disk holds.
 #include <cstdint>
-#include <string_view>
+#include <sstream>
+#include <string>
 
 #include "index/approximate_index.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
-  const std::string_view bytes(reinterpret_cast<const char*>(data), size);
+  std::istringstream bytes(std::string(reinterpret_cast<const char*>(data), size));
   const waymark::IndexKind kind = size > 0 && (data[0] & 1) ? waymark::IndexKind::graph : waymark::IndexKind::partitioned;
   waymark::ApproximateIndex index(kind, std::vector<double>(4, 1.0));
   waymark::VectorIndex::Contents stored;

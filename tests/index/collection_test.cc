@@ -4,6 +4,7 @@
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
+#include <rocksdb/db.h>
 #include <thread>
 
 #include "index/collection.h"
@@ -352,6 +353,49 @@ TEST_CASE("DamagedWriteAheadLogStopsTheOpenInsteadOfDroppingWrites") {
     std::fstream file(log, std::ios::in | std::ios::out | std::ios::binary);
     file.seekp(static_cast<std::streamoff>(size / 2));
     const std::string garbage(64, '\x5a');
+    file.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
+  }
+  Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path.string());
+  REQUIRE_FALSE(reopened.is_ok());
+  INFO(reopened.status().to_string());
+  CHECK(reopened.status().message().find("Corruption") != std::string::npos);
+}
+
+// A table file damaged on disk (the store's flushed records, not its log) must also stop the
+// open with RocksDB's checksum error: every block is read and verified when the collection
+// opens, so damage is found at startup rather than served as missing shapes later.
+TEST_CASE("DamagedTableFileStopsTheOpen") {
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(3000, 12);
+  {
+    auto collection = Collection::create(directory.path.string(), settings_with(16));
+    REQUIRE(collection.is_ok());
+    for (std::size_t start = 0; start < records.size(); start += 500) {
+      REQUIRE((*collection)->upsert(std::span(records).subspan(start, 500)).is_ok());
+    }
+  }
+  {  // Move everything from the log into table files, as RocksDB does once a memtable fills.
+    rocksdb::DB* raw = nullptr;
+    REQUIRE(rocksdb::DB::Open(rocksdb::Options(), directory.path.string(), &raw).ok());
+    std::unique_ptr<rocksdb::DB> database(raw);
+    REQUIRE(database->Flush(rocksdb::FlushOptions()).ok());
+    REQUIRE(database->Close().ok());
+  }
+  // (Not opened undamaged first: the block cache, shared by the process, would then answer the
+  // reopen's reads from memory and the damage would only be found by a fresh process.)
+  std::filesystem::path table;
+  for (const auto& entry : std::filesystem::directory_iterator(directory.path)) {
+    if (entry.path().extension() == ".sst" && (table.empty() || entry.file_size() > std::filesystem::file_size(table))) {
+      table = entry.path();
+    }
+  }
+  REQUIRE(!table.empty());
+  const auto size = std::filesystem::file_size(table);
+  REQUIRE(size > 100000);
+  {
+    std::fstream file(table, std::ios::in | std::ios::out | std::ios::binary);
+    file.seekp(static_cast<std::streamoff>(size / 3));  // inside a data block, far from the footer
+    const std::string garbage(16, '\x5a');
     file.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
   }
   Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path.string());

@@ -7,7 +7,8 @@
 // generation — every acknowledged shape's sketch equals a fresh sketch under the landmarks
 // the manifest names. The third kills a graph collection while its approximate index is being
 // rebuilt and its snapshot rewritten: the reopened collection must open (loading the snapshot or
-// reporting why it rebuilds), rebuild its index and answer fast queries.
+// reporting why it rebuilds), rebuild its index and answer fast queries. The fourth compacts the
+// store over and over in the child, so kills land while RocksDB rewrites its files.
 #include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -39,6 +40,7 @@ void kill_rounds(const std::string& mode) {
   std::size_t next = 0, acknowledged_total = 0;
   std::uint64_t newest_generation = 1;
   std::set<std::string> snapshot_states;  // graph mode: how each reopen found the snapshot
+  std::size_t compactions = 0;             // compact mode: compactions the children finished
   SeededRandom timing(3);
   for (int round = 0; round < 8; ++round) {
     int pipe_ends[2];
@@ -74,6 +76,7 @@ void kill_rounds(const std::string& mode) {
       if (std::sscanf(printed.c_str() + pos, "acked %zu %zu", &first, &last) == 2) last_acknowledged = last + 1;
     }
     acknowledged_total += last_acknowledged - next;
+    for (std::size_t pos = 0; (pos = printed.find("compacted ", pos)) != std::string::npos; ++pos) ++compactions;
 
     Result<std::unique_ptr<Collection>> collection = Collection::open(directory);
     if (!collection && collection.status().code() == StatusCode::not_found) {
@@ -132,6 +135,10 @@ void kill_rounds(const std::string& mode) {
     for (const std::string& state : snapshot_states) seen += " [" + state + "]";
     WARN("snapshot states found on reopen:" << seen);
   }
+  if (mode == "compact") {
+    WARN("compactions finished between kills: " << compactions);
+    CHECK(compactions >= 4);  // the child compacts back to back: kills fall inside compactions
+  }
   if (refit) {
     WARN("landmark generation reached: " << newest_generation);
     CHECK(newest_generation > 1);  // refits did switch between kills
@@ -146,3 +153,5 @@ TEST_CASE("KillDuringIngestLosesNoAcknowledgedWrite") { kill_rounds(""); }
 TEST_CASE("KillDuringRefitServesOneWholeGeneration") { kill_rounds("refit"); }
 
 TEST_CASE("KillDuringIndexBuildsAndSnapshotWritesReopensCleanly") { kill_rounds("graph"); }
+
+TEST_CASE("KillDuringStoreCompactionsLosesNoAcknowledgedWrite") { kill_rounds("compact"); }

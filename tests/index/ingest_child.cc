@@ -5,8 +5,9 @@
 // meanwhile, so kills also land during re-sketching and generation switches (ingest then
 // stops at 2000 shapes). With "graph", the collection is a graph (HNSW) one whose approximate
 // index is rebuilt and its snapshot rewritten after every few batches, so kills also land
-// during index builds and snapshot writes.
-// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER [refit|graph]
+// during index builds and snapshot writes. With "compact", a second thread compacts the store
+// over and over (printing "compacted <n>"), so kills land during compactions.
+// Usage: ingest_child DIRECTORY FIRST_SHAPE_NUMBER [refit|graph|compact]
 #include <cstdio>
 #include <cstdlib>
 #include <string>
@@ -23,6 +24,7 @@ int main(int argc, char** argv) {
   if (argc != 3 && argc != 4) return 2;
   const bool refit = argc == 4 && std::string(argv[3]) == "refit";
   const bool graph = argc == 4 && std::string(argv[3]) == "graph";
+  const bool compact = argc == 4 && std::string(argv[3]) == "compact";
   const std::string directory = argv[1];
   std::size_t next = std::strtoull(argv[2], nullptr, 10);
   ApproximateIndexSettings approximate;
@@ -41,6 +43,16 @@ int main(int argc, char** argv) {
   if (!collection) {
     std::fprintf(stderr, "%s\n", collection.status().to_string().c_str());
     return 1;
+  }
+  if (compact) {
+    std::thread([&collection] {
+      for (int n = 1;; ++n) {
+        if ((*collection)->compact_store().is_ok()) {
+          std::printf("compacted %d\n", n);
+          std::fflush(stdout);
+        }
+      }
+    }).detach();
   }
   if (refit) {
     std::thread([&collection] {

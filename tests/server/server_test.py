@@ -453,6 +453,15 @@ def run_api_checks(server, directory):
     check(status == 200 and 'waymark_http_requests_total{method="POST",route="/v1/collections/{name}/nearest",status="200"}'
           in text and 'waymark_collection_shapes{collection="parts"} 603' in text and
           'waymark_ingest_shapes_total{outcome="accepted"} 600' in text, "metrics:\n" + text[:2000])
+    # Memory gauges: resident size against the kernel's own figure (/proc/PID/status, read
+    # right after), the shared block cache's configured 512 MiB, unflushed writes in memtables.
+    gauges = {line.split()[0]: float(line.split()[1]) for line in text.splitlines() if line and not line.startswith("#")}
+    with open("/proc/%d/status" % server.process.pid) as f:
+        kernel_rss = next(int(l.split()[1]) * 1024 for l in f if l.startswith("VmRSS:"))
+    check(abs(gauges.get("process_resident_memory_bytes", 0) - kernel_rss) < 0.2 * kernel_rss,
+          "resident memory gauge %s vs kernel %d" % (gauges.get("process_resident_memory_bytes"), kernel_rss))
+    check(gauges.get("waymark_block_cache_capacity_bytes") == 512 * 1024 * 1024, "block cache capacity gauge")
+    check(gauges.get('waymark_collection_memtable_bytes{collection="parts"}', 0) > 0, "memtable gauge")
 
     # A second collection can be created and dropped.
     status, _ = server.call("PUT", "/v1/collections/scratch", {"landmarks": {"count": 16, "layout": "random"}}, token=WRITE)

@@ -99,6 +99,23 @@ def resident_mb(pid):
     return 0.0
 
 
+def memory_gauges(port):
+    """The server's own memory figures from /metrics, in MB: what RSS growth can be traced to."""
+    status, text = call(port, "GET", "/metrics", None, TOKEN)
+    if status != 200:
+        return {}
+    wanted = {"waymark_block_cache_bytes": "block cache", "waymark_collection_memtable_bytes": "memtables",
+              "waymark_collection_index_bytes": "indexes", "waymark_collection_table_reader_bytes": "table readers"}
+    totals = {}
+    for line in text.decode().splitlines():
+        if line.startswith("#") or not line:
+            continue
+        name = line.split("{")[0].split()[0]
+        if name in wanted:
+            totals[wanted[name]] = totals.get(wanted[name], 0.0) + float(line.rsplit(" ", 1)[1]) / 2**20
+    return totals
+
+
 def percentile(values, p):
     values = sorted(values)
     return values[min(len(values) - 1, int(p * len(values)))] if values else 0.0
@@ -108,7 +125,10 @@ def main():
     work = tempfile.mkdtemp(prefix="waymark-soak-")
     server = Waymarkd(WAYMARKD, os.path.join(work, "data"),
                       {"WAYMARK_WRITE_TOKENS": TOKEN, "WAYMARK_MAX_CONCURRENT_QUERIES": "3",
-                       "WAYMARK_LOG_LEVEL": "warn", "WAYMARK_WORKER_THREADS": "2"})
+                       "WAYMARK_LOG_LEVEL": "warn", "WAYMARK_WORKER_THREADS": "2",
+                       # a small cache, so that it is full before the warm-up ends and RSS can be
+                       # expected flat after it (it fills to capacity: blocks of rewritten files linger)
+                       "WAYMARK_BLOCK_CACHE_BYTES": str(64 << 20)})
     try:
         status, body = call(server.port, "PUT", "/v1/collections/soak",
                             json.dumps({"frame": "unit", "index": "graph", "landmarks": {"count": 32}}), TOKEN)
@@ -118,13 +138,16 @@ def main():
         threads += [threading.Thread(target=querier, args=(server.port, 10 + i)) for i in range(4)]
         for thread in threads:
             thread.start()
-        samples = []
+        samples, breakdowns = [], []
         started = time.time()
         while time.time() - started < MINUTES * 60:
             time.sleep(5)
             samples.append((time.time() - started, resident_mb(server.process.pid)))
-            print("soak: %4.0f s  RSS %.0f MB  unexpected replies %d" % (samples[-1][0], samples[-1][1], len(unexpected)),
-                  flush=True)
+            gauges = memory_gauges(server.port)
+            breakdowns.append(gauges)
+            print("soak: %4.0f s  RSS %.0f MB (%s)  unexpected replies %d"
+                  % (samples[-1][0], samples[-1][1], ", ".join("%s %.0f" % item for item in sorted(gauges.items())),
+                     len(unexpected)), flush=True)
         stop.set()
         for thread in threads:
             thread.join()
@@ -141,6 +164,10 @@ def main():
     peak_after_warm_up = max((mb for _, mb in samples[len(samples) // 3:]), default=0)
     print("stored shapes at the end: %d; RSS at one third: %.0f MB, highest after: %.0f MB, at the end: %.0f MB"
           % (shapes, third, peak_after_warm_up, samples[-1][1] if samples else 0))
+    if breakdowns:
+        describe = lambda gauges: ", ".join("%s %.0f MB" % item for item in sorted(gauges.items()))
+        print("server's own figures at one third: %s; at the end: %s"
+              % (describe(breakdowns[len(breakdowns) // 3]), describe(breakdowns[-1])))
     failed = False
     if unexpected:
         print("FAIL: %d unexpected replies, first: %s" % (len(unexpected), unexpected[:3]))
