@@ -79,8 +79,10 @@ struct VectorisedFlatL2 final : faiss::IndexFlatL2 {
 // plain flat L2 index and reads it back as one, so this runs after every build and every read.
 void use_vectorised_storage(faiss::Index& index) {
   auto* graph = dynamic_cast<faiss::IndexHNSWFlat*>(&index);
-  auto* plain = graph ? dynamic_cast<faiss::IndexFlatL2*>(graph->storage) : nullptr;
-  if (!plain || dynamic_cast<VectorisedFlatL2*>(plain)) return;
+  // FAISS 1.7.3 builds a graph over an IndexFlat with metric L2 and reads one back as an
+  // IndexFlatL2: accept either.
+  auto* plain = graph ? dynamic_cast<faiss::IndexFlat*>(graph->storage) : nullptr;
+  if (!plain || plain->metric_type != faiss::METRIC_L2 || dynamic_cast<VectorisedFlatL2*>(plain)) return;
   auto vectorised = std::make_unique<VectorisedFlatL2>(plain->d);
   vectorised->codes = std::move(plain->codes);
   vectorised->ntotal = plain->ntotal;
