@@ -437,6 +437,14 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   }
 
   // Rebuild the derived state: records and this generation's sketches, both in id order.
+  // The id maps' buckets are reserved from the store's key estimate (records and sketches alike,
+  // so about twice the shapes): growing a million-entry map rehashes every node each time. Only
+  // bucket arrays (8 bytes a bucket): an estimate that overcounts costs little.
+  std::uint64_t estimated_keys = 0;
+  state->database->GetIntProperty(rocksdb::DB::Properties::kEstimateNumKeys, &estimated_keys);
+  const std::size_t estimated_shapes = static_cast<std::size_t>(estimated_keys / 2);
+  state->label_of_id.reserve(estimated_shapes);
+  state->id_of_label.reserve(estimated_shapes);
   std::vector<std::int64_t> labels;
   std::vector<float> vectors;
   // One snapshot for both iterators, so they see the same store.

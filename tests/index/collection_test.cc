@@ -327,6 +327,30 @@ TEST_CASE("QueriesRunCorrectlyDuringIngest", "[concurrency]") {
   CHECK(collection.size() == records.size() - 2 * ((records.size() - 500) / 250));
 }
 
+namespace {
+
+// Overwrites `count` bytes at `fraction` of the largest file in `directory` with the given
+// extension, as a bad sector or a bad copy would; returns that file's size (0 if none).
+std::uintmax_t overwrite_inside_largest_file(const std::filesystem::path& directory, const std::string& extension,
+                                             double fraction, std::size_t count) {
+  std::filesystem::path largest;
+  for (const auto& entry : std::filesystem::directory_iterator(directory)) {
+    if (entry.path().extension() == extension &&
+        (largest.empty() || entry.file_size() > std::filesystem::file_size(largest))) {
+      largest = entry.path();
+    }
+  }
+  if (largest.empty()) return 0;
+  const std::uintmax_t size = std::filesystem::file_size(largest);
+  std::fstream file(largest, std::ios::in | std::ios::out | std::ios::binary);
+  file.seekp(static_cast<std::streamoff>(static_cast<double>(size) * fraction));
+  const std::string garbage(count, '\x5a');
+  file.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
+  return size;
+}
+
+}  // namespace
+
 // A write-ahead log damaged in the middle (a bad disk sector, a bad copy) must stop the open with
 // an error naming the damage, not silently drop the acknowledged writes after it (RocksDB's
 // default recovery mode does the latter). A torn last record is covered by the SIGKILL tests.
@@ -340,21 +364,8 @@ TEST_CASE("DamagedWriteAheadLogStopsTheOpenInsteadOfDroppingWrites") {
       REQUIRE((*collection)->upsert(std::span(records).subspan(start, 100)).is_ok());
     }
   }
-  std::filesystem::path log;
-  for (const auto& entry : std::filesystem::directory_iterator(directory.path)) {
-    if (entry.path().extension() == ".log" && (log.empty() || entry.file_size() > std::filesystem::file_size(log))) {
-      log = entry.path();
-    }
-  }
-  REQUIRE(!log.empty());
-  const auto size = std::filesystem::file_size(log);
-  REQUIRE(size > 100000);  // the records are still in the log, not yet in table files
-  {
-    std::fstream file(log, std::ios::in | std::ios::out | std::ios::binary);
-    file.seekp(static_cast<std::streamoff>(size / 2));
-    const std::string garbage(64, '\x5a');
-    file.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
-  }
+  // The records are still in the log, not yet in table files.
+  REQUIRE(overwrite_inside_largest_file(directory.path, ".log", 0.5, 64) > 100000);
   Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path.string());
   REQUIRE_FALSE(reopened.is_ok());
   INFO(reopened.status().to_string());
@@ -383,21 +394,8 @@ TEST_CASE("DamagedTableFileStopsTheOpen") {
   }
   // (Not opened undamaged first: the block cache, shared by the process, would then answer the
   // reopen's reads from memory and the damage would only be found by a fresh process.)
-  std::filesystem::path table;
-  for (const auto& entry : std::filesystem::directory_iterator(directory.path)) {
-    if (entry.path().extension() == ".sst" && (table.empty() || entry.file_size() > std::filesystem::file_size(table))) {
-      table = entry.path();
-    }
-  }
-  REQUIRE(!table.empty());
-  const auto size = std::filesystem::file_size(table);
-  REQUIRE(size > 100000);
-  {
-    std::fstream file(table, std::ios::in | std::ios::out | std::ios::binary);
-    file.seekp(static_cast<std::streamoff>(size / 3));  // inside a data block, far from the footer
-    const std::string garbage(16, '\x5a');
-    file.write(garbage.data(), static_cast<std::streamsize>(garbage.size()));
-  }
+  // A third of the way in: inside a data block, far from the index and footer at the end.
+  REQUIRE(overwrite_inside_largest_file(directory.path, ".sst", 1.0 / 3, 16) > 100000);
   Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path.string());
   REQUIRE_FALSE(reopened.is_ok());
   INFO(reopened.status().to_string());
