@@ -86,7 +86,8 @@ class ApproximateIndex {
 
   // Streams the built index as a snapshot file (index/STORE_FORMAT.md, "Approximate index
   // snapshot"), tagged with `generation`, to `sink` in pieces: no copy of the whole file is
-  // ever held (a graph of a million shapes is hundreds of MB). Writers wait while it runs.
+  // ever held (a graph of a million shapes is hundreds of MB). Holds the index's shared lock
+  // meanwhile: queries and fresh writes go on, a finished rebuild waits to swap in.
   // failed_precondition when nothing is built; the sink's first error otherwise.
   using ByteSink = std::function<Status(std::string_view)>;
   Status write_snapshot(std::uint64_t generation, const ByteSink& sink) const;
