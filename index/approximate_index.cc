@@ -237,7 +237,7 @@ constexpr char kSnapshotMagic[8] = {'W', 'M', 'A', 'P', 'P', 'R', 'X', '1'};
 std::string_view as_bytes(const void* data, std::size_t size) { return {static_cast<const char*>(data), size}; }
 
 // FAISS serialises through an IOWriter; these two pass its pieces on. The first only counts
-// (the file states the FAISS part's length before it), the second checksums and forwards.
+// (the file states the FAISS part's length before it), the second forwards to `write`.
 struct CountingWriter : faiss::IOWriter {
   std::uint64_t bytes = 0;
   size_t operator()(const void*, size_t size, size_t items) override {
@@ -247,17 +247,13 @@ struct CountingWriter : faiss::IOWriter {
 };
 
 struct ForwardingWriter : faiss::IOWriter {
-  explicit ForwardingWriter(const std::function<Status(std::string_view)>& sink, std::uint64_t& checksum)
-      : sink(sink), checksum(checksum) {}
+  explicit ForwardingWriter(const std::function<Status(std::string_view)>& write) : write(write) {}
   size_t operator()(const void* data, size_t size, size_t items) override {
     if (!failure.is_ok()) return 0;
-    const std::string_view piece = as_bytes(data, size * items);
-    checksum = fnv1a64(piece, checksum);
-    failure = sink(piece);
+    failure = write(as_bytes(data, size * items));
     return failure.is_ok() ? items : 0;  // FAISS then throws; the caller reports `failure`
   }
-  const std::function<Status(std::string_view)>& sink;
-  std::uint64_t& checksum;
+  const std::function<Status(std::string_view)>& write;
   Status failure;
 };
 
@@ -283,13 +279,14 @@ Status ApproximateIndex::write_snapshot(std::uint64_t generation, const ByteSink
   std::shared_lock lock(mutex_);
   if (!built_) return Status(StatusCode::failed_precondition, "the approximate index is not built");
   std::uint64_t checksum = kFnv1a64OffsetBasis;
-  auto put = [&](std::string_view piece) {
+  // Every piece but the checksum itself goes through `put`, which checksums it on the way.
+  const ByteSink put = [&](std::string_view piece) {
     checksum = fnv1a64(piece, checksum);
     return sink(piece);
   };
   auto put_u64 = [&](std::uint64_t value) { return put(as_bytes(&value, sizeof value)); };
   CountingWriter counter;
-  ForwardingWriter forward(sink, checksum);
+  ForwardingWriter forward(put);
   try {
     faiss::write_index(built_.get(), &counter);
     Status status = put(as_bytes(kSnapshotMagic, sizeof kSnapshotMagic));

@@ -271,11 +271,12 @@ Status Collection::State::build_approximate_index_if_due() {
 namespace {
 
 // Loads the approximate index's snapshot into a freshly opened generation, or says why not.
-void restore_approximate_index(Collection::State& state) {
+// `stored`: what the open just read into the exhaustive index (not copied out of it again).
+void restore_approximate_index(Collection::State& state, const VectorIndex::Contents& stored) {
   Generation& generation = *state.current;
   std::ifstream in(state.approximate_snapshot_path(), std::ios::binary);
   if (!in) return;  // none yet: the builder makes one when due
-  const Status restored = generation.approximate->restore(in, generation.number(), generation.index.copy());
+  const Status restored = generation.approximate->restore(in, generation.number(), stored);
   generation.approximate->set_snapshot_note(restored.is_ok() ? "loaded" : "rebuilding: " + restored.message());
   // Labels are never reused, also not those that only the snapshot still remembers.
   state.next_label = std::max(state.next_label, generation.approximate->largest_label() + 1);
@@ -495,7 +496,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   // from this index, so copying every vector into its fresh part here would be undone at once.
   if (Status s = generation.index.add(labels, vectors); !s.is_ok()) return s;
   state->directory = directory;
-  if (generation.approximate) restore_approximate_index(*state);
+  if (generation.approximate) restore_approximate_index(*state, {std::move(labels), std::move(vectors)});
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 

@@ -81,10 +81,13 @@ int main(int argc, char** argv) {
 
   ApproximateIndexSettings build_now;
   build_now.minimum_size = 1;
-  const auto reopen_start = Clock::now();
-  collection->reset();
-  collection = Collection::open(directory.string(), build_now);
-  const double reopen_seconds = milliseconds(Clock::now() - reopen_start) / 1000;
+  auto reopen = [&] {  // closes and opens the collection as a restart does; returns seconds
+    const auto start = Clock::now();
+    collection->reset();
+    collection = Collection::open(directory.string(), build_now);
+    return milliseconds(Clock::now() - start) / 1000;
+  };
+  const double reopen_seconds = reopen();
   const auto build_start = Clock::now();
   if (Status s = (*collection)->build_approximate_index_now(); !s.is_ok()) {
     std::fprintf(stderr, "%s\n", s.to_string().c_str());
@@ -94,10 +97,7 @@ int main(int argc, char** argv) {
   // A restart as waymarkd does it: the approximate index comes from the snapshot the build wrote.
   double reopen_with_snapshot_seconds = 0;
   if (*kind != IndexKind::exhaustive) {
-    const auto start = Clock::now();
-    collection->reset();
-    collection = Collection::open(directory.string(), build_now);
-    reopen_with_snapshot_seconds = milliseconds(Clock::now() - start) / 1000;
+    reopen_with_snapshot_seconds = reopen();
     if (!collection || (*collection)->statistics().approximate.snapshot != "loaded") {
       std::fprintf(stderr, "reopen did not load the snapshot: %s\n",
                    collection ? (*collection)->statistics().approximate.snapshot.c_str() : collection.status().to_string().c_str());
