@@ -71,12 +71,25 @@ struct Candidate {
   bool operator<(const Candidate& other) const { return value < other.value; }
 };
 
-// Vertex-to-segment distances in (lo, hi] (type B critical values).
-void collect_vertex_segment(const Path& vertices, const Segments& segments, bool vertices_on_p, double lo, double hi,
-                            std::vector<Candidate>& out) {
+// For each segment of one curve, the vertices [begin, end) of the other curve whose free-space
+// boundaries touch a cell reachable at some ε (cells are (segment of P, segment of Q) pairs).
+// Every critical value at or below ε involves only these: the optimal path at d_F ≤ ε crosses
+// reachable cells alone, and a reachable cell stays reachable as ε grows.
+struct Window {
+  std::size_t begin = 0, end = 0;
+};
+using Windows = std::vector<Window>;
+
+bool decide(const Path& p, const Path& q, double epsilon, Windows* rows, Windows* columns);
+
+// Vertex-to-segment distances in (lo, hi] (type B critical values), each segment against its
+// window of vertices.
+void collect_vertex_segment(const Path& vertices, const Segments& segments, const Windows& windows,
+                            bool vertices_on_p, double lo, double hi, std::vector<Candidate>& out) {
   const double lo2 = lo * lo, hi2 = hi * hi;
   for (std::size_t j = 0; j < segments.size(); ++j) {
-    for (const Point& v : vertices) {
+    for (std::size_t k = windows[j].begin; k < windows[j].end; ++k) {
+      const Point v = vertices[k];
       if (!segments.near_box(j, v, hi)) continue;
       const Point c = segments.closest(j, v);
       const double d2 = squared_distance(v, c);
@@ -88,23 +101,51 @@ void collect_vertex_segment(const Path& vertices, const Segments& segments, bool
 }
 
 // Points of a segment equidistant from two vertices of the other curve, with that distance in
-// (lo, hi] (type C critical values). Both vertices are then within hi of the segment.
-void collect_equidistant(const Path& vertices, const Segments& segments, bool vertices_on_p, double lo, double hi,
-                         std::vector<Candidate>& out) {
-  const double hi2 = hi * hi;
-  thread_local std::vector<std::size_t> near;
+// (lo, hi] (type C critical values). Such a point is at a distance in (lo, hi] from both
+// vertices, so each vertex contributes the parameter ranges where its distance is in that
+// annulus (at most two per segment), and only pairs whose ranges overlap are solved: a sweep in
+// O(v log v + overlapping pairs) per segment instead of all pairs of nearby vertices. The
+// annulus is widened by `margin` on both sides so that rounding never drops a candidate; the
+// exact (lo, hi] test is applied to each solved point.
+void collect_equidistant(const Path& vertices, const Segments& segments, const Windows& windows, bool vertices_on_p,
+                         double lo, double hi, double margin, std::vector<Candidate>& out) {
+  struct Range {
+    double begin, end;
+    std::size_t vertex;
+  };
+  thread_local std::vector<Range> ranges;
+  thread_local std::vector<Range> open;
+  const double outer2 = (hi + margin) * (hi + margin);
+  const double inner2 = lo > margin ? (lo - margin) * (lo - margin) : 0;
   for (std::size_t j = 0; j < segments.size(); ++j) {
     const Point a = segments.start[j];
     const double dx = segments.delta[j].x, dy = segments.delta[j].y;
-    near.clear();
-    for (std::size_t k = 0; k < vertices.size(); ++k) {
-      if (segments.near_box(j, vertices[k], hi) && squared_distance(vertices[k], segments.closest(j, vertices[k])) <= hi2) {
-        near.push_back(k);
+    const double length = 1 / std::sqrt(segments.inverse_length_squared[j]);
+    ranges.clear();
+    for (std::size_t k = windows[j].begin; k < windows[j].end; ++k) {
+      const Point v = vertices[k];
+      if (!segments.near_box(j, v, hi + margin)) continue;
+      // Distance to the supporting line (h) and the foot's parameter (t0): the distance at t is
+      // sqrt(h² + (length·(t − t0))²).
+      const double t0 = ((v.x - a.x) * dx + (v.y - a.y) * dy) * segments.inverse_length_squared[j];
+      const double h2 = squared_distance(v, {a.x + t0 * dx, a.y + t0 * dy});
+      if (h2 > outer2) continue;
+      const double reach = std::sqrt(outer2 - h2) / length;
+      const double hole = inner2 > h2 ? std::sqrt(inner2 - h2) / length : 0;
+      const double pad = 1e-9;
+      for (const auto& [from, to] : {std::pair{t0 - reach, t0 - hole}, std::pair{t0 + hole, t0 + reach}}) {
+        const double begin = std::max(0.0, from - pad), end = std::min(1.0, to + pad);
+        if (begin <= end) ranges.push_back({begin, end, k});
       }
     }
-    for (std::size_t x = 0; x < near.size(); ++x) {
-      for (std::size_t y = x + 1; y < near.size(); ++y) {
-        const Point pk = vertices[near[x]], pl = vertices[near[y]];
+    std::sort(ranges.begin(), ranges.end(), [](const Range& x, const Range& y) { return x.begin < y.begin; });
+    open.clear();
+    for (const Range& range : ranges) {
+      std::erase_if(open, [&](const Range& o) { return o.end < range.begin; });
+      for (const Range& other : open) {
+        if (other.vertex == range.vertex) continue;
+        const Point pk = vertices[std::min(other.vertex, range.vertex)];
+        const Point pl = vertices[std::max(other.vertex, range.vertex)];
         const double denominator = 2 * (dx * (pl.x - pk.x) + dy * (pl.y - pk.y));
         if (denominator == 0) continue;
         const double t = (squared_distance(pl, a) - squared_distance(pk, a)) / denominator;
@@ -115,6 +156,7 @@ void collect_equidistant(const Path& vertices, const Segments& segments, bool ve
           out.push_back(vertices_on_p ? Candidate{value, pk, on_segment} : Candidate{value, on_segment, pk});
         }
       }
+      open.push_back(range);
     }
   }
 }
@@ -128,7 +170,7 @@ bool search_candidates(const Path& p, const Path& q, double slack, std::vector<C
   while (begin < end) {
     auto middle = begin + (end - begin) / 2;
     std::nth_element(begin, middle, end);
-    if (frechet_at_most(p, q, middle->value + slack)) {
+    if (decide(p, q, middle->value + slack, nullptr, nullptr)) {
       hi = *middle;
       found = true;
       end = middle;
@@ -149,25 +191,9 @@ Path without_repeats(const Path& path) {
   return out;
 }
 
-}  // namespace
-
-Result<Path> curve_of(const Shape& shape) {
-  if (shape.kind == ShapeKind::points) {
-    return Status(StatusCode::not_applicable, "Fréchet distance needs a curve (a polyline or a polygon ring), not a point set");
-  }
-  if (shape.parts.size() != 1) {
-    return Status(StatusCode::not_applicable,
-                  "Fréchet distance needs a single curve, but the shape has " + std::to_string(shape.parts.size()) +
-                      (shape.kind == ShapeKind::polygon ? " rings" : " strokes"));
-  }
-  Path curve = shape.parts.front();
-  if (shape.kind == ShapeKind::polygon) curve.push_back(curve.front());  // back to the start vertex
-  curve = without_repeats(curve);
-  if (curve.size() < 2) return Status(StatusCode::not_applicable, "the curve has fewer than two distinct vertices");
-  return curve;
-}
-
-bool frechet_at_most(const Path& p, const Path& q, double epsilon) {
+// The decision procedure. When `rows` and `columns` are given (one window per segment of Q and
+// of P), each entered cell widens them: the windows of the cells reachable at ε.
+bool decide(const Path& p, const Path& q, double epsilon, Windows* rows, Windows* columns) {
   const std::size_t n = p.size() - 1, m = q.size() - 1;  // segment counts
   const double e2 = epsilon * epsilon;
   if (squared_distance(p.front(), q.front()) > e2 || squared_distance(p.back(), q.back()) > e2) return false;
@@ -195,6 +221,10 @@ bool frechet_at_most(const Path& p, const Path& q, double epsilon) {
       const Interval below = bottom[i];
       Interval right, top;
       if (!below.empty() || !left.empty()) {
+        if (rows) {
+          (*rows)[j] = {std::min((*rows)[j].begin, i), std::max((*rows)[j].end, i + 2)};
+          (*columns)[i] = {std::min((*columns)[i].begin, j), std::max((*columns)[i].end, j + 2)};
+        }
         const Interval right_free = free_interval(q[j], q[j + 1], p[i + 1], e2);
         right = below.empty() ? Interval{std::max(right_free.lo, left.lo), right_free.hi} : right_free;
         const Interval top_free = free_interval(p[i], p[i + 1], q[j + 1], e2);
@@ -212,8 +242,29 @@ bool frechet_at_most(const Path& p, const Path& q, double epsilon) {
   return false;
 }
 
+}  // namespace
+
+Result<Path> curve_of(const Shape& shape) {
+  if (shape.kind == ShapeKind::points) {
+    return Status(StatusCode::not_applicable, "Fréchet distance needs a curve (a polyline or a polygon ring), not a point set");
+  }
+  if (shape.parts.size() != 1) {
+    return Status(StatusCode::not_applicable,
+                  "Fréchet distance needs a single curve, but the shape has " + std::to_string(shape.parts.size()) +
+                      (shape.kind == ShapeKind::polygon ? " rings" : " strokes"));
+  }
+  Path curve = shape.parts.front();
+  if (shape.kind == ShapeKind::polygon) curve.push_back(curve.front());  // back to the start vertex
+  curve = without_repeats(curve);
+  if (curve.size() < 2) return Status(StatusCode::not_applicable, "the curve has fewer than two distinct vertices");
+  return curve;
+}
+
+bool frechet_at_most(const Path& p, const Path& q, double epsilon) { return decide(p, q, epsilon, nullptr, nullptr); }
+
 DistanceResult frechet(const Path& p, const Path& q) {
-  const double slack = 1e-10 * scale_of(p, q);
+  const double scale = scale_of(p, q);
+  const double slack = 1e-10 * scale;
   DistanceResult result;
   const double first = std::sqrt(squared_distance(p.front(), q.front()));
   const double last = std::sqrt(squared_distance(p.back(), q.back()));
@@ -246,13 +297,20 @@ DistanceResult frechet(const Path& p, const Path& q) {
   // Decisions were made at value + slack, so d_F ≤ hi + slack: collect candidates up to there.
   const double bound = hi.value + slack;
   const Segments p_segments(p), q_segments(q);
+  // Only cells reachable at the bound can hold the critical value: scan their boundaries alone
+  // (a band around the matching for similar curves, instead of every vertex–segment pair).
+  Windows rows(q_segments.size(), Window{p.size(), 0}), columns(p_segments.size(), Window{q.size(), 0});
+  if (!decide(p, q, bound, &rows, &columns)) {  // rounding only: fall back to every pair
+    rows.assign(rows.size(), Window{0, p.size()});
+    columns.assign(columns.size(), Window{0, q.size()});
+  }
   std::vector<Candidate> candidates;
-  collect_vertex_segment(p, q_segments, true, lo, bound, candidates);
-  collect_vertex_segment(q, p_segments, false, lo, bound, candidates);
+  collect_vertex_segment(p, q_segments, rows, true, lo, bound, candidates);
+  collect_vertex_segment(q, p_segments, columns, false, lo, bound, candidates);
   bool found = search_candidates(p, q, slack, candidates, lo, hi);
   candidates.clear();
-  collect_equidistant(p, q_segments, true, lo, found ? hi.value : bound, candidates);
-  collect_equidistant(q, p_segments, false, lo, found ? hi.value : bound, candidates);
+  collect_equidistant(p, q_segments, rows, true, lo, found ? hi.value : bound, 1e-8 * scale, candidates);
+  collect_equidistant(q, p_segments, columns, false, lo, found ? hi.value : bound, 1e-8 * scale, candidates);
   found = search_candidates(p, q, slack, candidates, lo, hi) || found;
   if (!found && !hi_is_critical) {
     // No candidate decided yes: only rounding can cause this. Report the proven bracket.

@@ -83,6 +83,27 @@ TEST_CASE("DecisionsAgreeWithValues") {
   }
 }
 
+TEST_CASE("DecisionsAgreeWithValuesOnNearbyCurves") {
+  // Jittered copies, as kNN re-ranking sees them: the reachable free space is a narrow band, and
+  // the value search only scans that band's cell boundaries. A candidate wrongly left out would
+  // make the returned value a later critical value, which the decision below it would accept.
+  SeededRandom random(35);
+  for (int trial = 0; trial < 300; ++trial) {
+    const std::size_t vertices = 8 + random.below(90);
+    const Shape base = trial % 3 == 0 ? testing::random_star_polygon(random, vertices) : testing::random_walk(random, vertices);
+    const Shape a = testing::jittered(base, random, 0.05 + 0.1 * (trial % 4));
+    const Shape b = testing::jittered(base, random, 0.05);
+    const Result<DistanceResult> value = frechet(a, b);
+    REQUIRE(value.is_ok());
+    CHECK(value->converged);
+    const double f = value->value;
+    INFO("trial " << trial << ": frechet " << f);
+    CHECK(*frechet_at_most(a, b, f * (1 + 1e-7) + 1e-9));
+    CHECK_FALSE(*frechet_at_most(a, b, f * (1 - 1e-7) - 1e-9));
+    CHECK(f <= discrete_frechet(a, b)->value + 1e-9);
+  }
+}
+
 TEST_CASE("SketchLowerBoundNeverExceedsHausdorff") {
   for (LandmarkLayout layout : {LandmarkLayout::grid, LandmarkLayout::random}) {
     const Box domain{-2, -2, 12, 12};
