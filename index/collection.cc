@@ -293,9 +293,20 @@ Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) 
       lock.unlock();
       (void)shared->build_approximate_index_if_due();  // a failed build is retried on the next wake
       lock.lock();
-      shared->builder_wake.wait_for(lock, std::chrono::seconds(1));
+      // With a predicate: a stop or wake that came during the build is not waited out.
+      shared->builder_wake.wait_for(lock, std::chrono::seconds(1),
+                                    [shared] { return shared->builder_stop || shared->builder_check_due; });
+      shared->builder_check_due = false;
     }
   });
+}
+
+void Collection::State::wake_builder() {
+  {
+    std::lock_guard lock(builder_mutex);
+    builder_check_due = true;
+  }
+  builder_wake.notify_one();
 }
 
 Collection::~Collection() {
@@ -448,10 +459,16 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   state->id_of_label.reserve(estimated_shapes);
   std::vector<std::int64_t> labels;
   std::vector<float> vectors;
-  // One snapshot for both iterators, so they see the same store.
+  // One snapshot for both iterators, so they see the same store. The scan reads every block
+  // once: through the block cache it would only churn it (an insert and an eviction per block),
+  // and large read-ahead turns the table files' blocks into few large reads. Checksums are
+  // still verified on every block.
   const rocksdb::Snapshot* snapshot = state->database->GetSnapshot();
   rocksdb::ReadOptions at_snapshot;
   at_snapshot.snapshot = snapshot;
+  at_snapshot.fill_cache = false;
+  at_snapshot.readahead_size = 4 << 20;
+  at_snapshot.verify_checksums = true;
   std::unique_ptr<rocksdb::Iterator> records(state->database->NewIterator(at_snapshot));
   std::unique_ptr<rocksdb::Iterator> sketches(state->database->NewIterator(at_snapshot));
   const std::string prefix = sketch_prefix(number);
@@ -591,7 +608,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   }
   state.next_label = next_label;
   lock.unlock();
-  state.builder_wake.notify_one();  // an approximate index may be due
+  state.wake_builder();  // an approximate index may be due
   return Status::ok();
 }
 
@@ -628,7 +645,7 @@ Status Collection::remove(std::span<const std::string> ids) {
     state.label_of_id.erase(removed[i]);
   }
   lock.unlock();
-  state.builder_wake.notify_one();  // tombstones may make a rebuild due
+  state.wake_builder();  // tombstones may make a rebuild due
   return Status::ok();
 }
 

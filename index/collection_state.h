@@ -75,7 +75,9 @@ struct Collection::State {
   std::thread builder;
   std::mutex builder_mutex;
   std::condition_variable builder_wake;
-  bool builder_stop = false;  // guarded by builder_mutex
+  bool builder_stop = false;       // guarded by builder_mutex
+  bool builder_check_due = false;  // guarded by builder_mutex: a write may have made a build due
+  void wake_builder();             // after a write
   std::mutex build_mutex;     // one build at a time (the thread, or build_approximate_index_now)
   Status build_approximate_index_if_due();  // and writes its snapshot
   std::string approximate_snapshot_path() const { return directory + "/approximate-index.snapshot"; }
