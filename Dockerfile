@@ -18,7 +18,7 @@ FROM debian:bookworm-slim
 # LAPACK), pugixml for the CLI's SVG reader, and curl for the health check.
 RUN apt-get update \
  && apt-get install -y --no-install-recommends librocksdb7.8 libspdlog1.10 libfmt9 libopenblas0-pthread libgomp1 \
-      libssl3 libpugixml1v5 curl \
+      libxxhash0 libssl3 libpugixml1v5 curl \
  && rm -rf /var/lib/apt/lists/* \
  && useradd --system --uid 10001 --home-dir /var/lib/waymark --shell /usr/sbin/nologin waymark \
  && mkdir -p /var/lib/waymark /etc/waymark && chown waymark:waymark /var/lib/waymark
