@@ -8,7 +8,8 @@ cmake --build build --target sketch_benchmarks index_benchmark >/dev/null
   --benchmark_min_time=0.2 "$@" 2>&1 | grep -E "Benchmark|----|_median|CPU|Run on|Load"
 # The collection benchmark (ingest; fast / exact / full-scan kNN; memory) runs when asked for,
 # since the full exact Fréchet scan takes seconds per query: WAYMARK_INDEX_BENCHMARK="SHAPES
-# VERTICES LANDMARKS QUERIES [exhaustive|graph|partitioned] [QUERIES_WITH_FULL_SCAN]", e.g.
+# VERTICES LANDMARKS QUERIES [exhaustive|graph|partitioned] [QUERIES_WITH_FULL_SCAN]
+# [QUERIES_IN_EXACT_MODE]", e.g.
 # WAYMARK_INDEX_BENCHMARK="20000 64 64 12 exhaustive 3" scripts/run-benchmarks.sh
 if [[ -n "${WAYMARK_INDEX_BENCHMARK:-}" ]]; then
   echo
