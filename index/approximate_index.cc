@@ -5,9 +5,9 @@
 #include <faiss/IndexIVFFlat.h>
 #include <faiss/impl/AuxIndexStructures.h>
 #include <faiss/impl/io.h>
+#include <faiss/index_io.h>
 #include <faiss/utils/Heap.h>
 #include <xxhash.h>
-#include <faiss/index_io.h>
 
 #include <algorithm>
 #include <chrono>
@@ -16,7 +16,6 @@
 #include <cstring>
 #include <unordered_set>
 
-#include "sketch/durable_file.h"
 #include "sketch/vector_clones.h"
 
 namespace waymark {
