@@ -100,7 +100,8 @@ Status write_file_atomically(const std::string& path, std::string_view bytes) {
   return file->commit();
 }
 
-std::uint64_t fnv1a64(std::string_view bytes, std::uint64_t hash) {
+std::uint64_t fnv1a64(std::string_view bytes) {
+  std::uint64_t hash = 0xcbf29ce484222325ull;  // the offset basis
   for (unsigned char c : bytes) {
     hash ^= c;
     hash *= 0x100000001b3ull;

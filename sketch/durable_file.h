@@ -46,10 +46,9 @@ class AtomicFileWriter {
 };
 Status sync_parent_directory(const std::string& path);
 
-// FNV-1a (64-bit) of `bytes`: the checksum our own file formats end with. O(n). Detects
-// accidental damage (truncation, flipped bytes), not tampering. Pass the hash of the bytes
-// before as `hash` to checksum a file in pieces: fnv1a64(b, fnv1a64(a)) == fnv1a64(a + b).
-constexpr std::uint64_t kFnv1a64OffsetBasis = 0xcbf29ce484222325ull;
-std::uint64_t fnv1a64(std::string_view bytes, std::uint64_t hash = kFnv1a64OffsetBasis);
+// FNV-1a (64-bit) of `bytes`: the checksum landmark files end with (index snapshots, hundreds
+// of MB, use XXH3 instead: index/STORE_FORMAT.md). O(n), one byte at a time. Detects
+// accidental damage (truncation, flipped bytes), not tampering.
+std::uint64_t fnv1a64(std::string_view bytes);
 
 }  // namespace waymark
