@@ -3,8 +3,9 @@
 // rebuilds when due, the background builder, and the kind surviving a restart.
 #include <catch2/catch.hpp>
 #include <xxhash.h>
-#include <cstring>
+
 #include <chrono>
+#include <cstring>
 #include <fstream>
 #include <thread>
 
