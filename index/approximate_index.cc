@@ -359,12 +359,14 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
   const std::streamoff end = in.tellg();
   if (!in || end < static_cast<std::streamoff>(sizeof kSnapshotMagic + 8)) return damaged("not a snapshot (size)");
   const std::uint64_t body_size = static_cast<std::uint64_t>(end) - 8;
+  // The magic first, so that a format-1 file is named as such rather than failing the checksum.
   in.seekg(0);
-  char leading[sizeof kSnapshotMagic];
-  if (!in.read(leading, sizeof leading)) return damaged("unreadable");
-  if (std::memcmp(leading, kFormat1Magic, sizeof leading) == 0) {
+  char magic[sizeof kSnapshotMagic];
+  if (!in.read(magic, sizeof magic)) return damaged("unreadable");
+  if (std::memcmp(magic, kFormat1Magic, sizeof magic) == 0) {
     return Status(StatusCode::failed_precondition, "snapshot is of an older format (1)");
   }
+  if (std::memcmp(magic, kSnapshotMagic, sizeof magic) != 0) return damaged("not a snapshot (magic)");
   // First pass: the checksum over everything before its own 8 bytes.
   in.seekg(0);
   Result<ChecksumState> checksum = new_checksum_state();
@@ -381,17 +383,14 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
   if (XXH3_64bits_digest(checksum->get()) != stored_checksum) return damaged("checksum mismatch");
   chunk = std::string();
 
-  in.seekg(0);
-  std::uint64_t offset = 0;
+  // Second pass: the fields after the magic.
+  std::uint64_t offset = sizeof kSnapshotMagic;
+  in.seekg(static_cast<std::streamoff>(offset));
   auto read_exactly = [&](void* data, std::uint64_t size) {
     if (body_size - offset < size || !in.read(static_cast<char*>(data), static_cast<std::streamsize>(size))) return false;
     offset += size;
     return true;
   };
-  char magic[sizeof kSnapshotMagic];
-  if (!read_exactly(magic, sizeof magic) || std::memcmp(magic, kSnapshotMagic, sizeof magic) != 0) {
-    return damaged("not a snapshot (magic)");
-  }
   std::uint64_t kind = 0, snapshot_generation = 0, partitions = 0, count = 0, faiss_size = 0;
   if (!read_exactly(&kind, 8) || !read_exactly(&snapshot_generation, 8) || !read_exactly(&partitions, 8) ||
       !read_exactly(&count, 8)) {
