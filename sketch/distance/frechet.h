@@ -14,16 +14,19 @@
 //   vertex-to-segment distances, and the distances at which a segment's point is equidistant
 //   from two vertices of the other curve — by binary search with the decision procedure over
 //   the candidates between a lower bound (endpoints) and an upper bound (discrete Fréchet),
-//   after six plain bisection steps have narrowed that bracket. Candidates are collected only
-//   on the boundaries of free-space cells reachable at the bracket's top (one more decision
-//   records them): the optimal path crosses no other cell, and for similar curves these form
-//   a band around the matching. Equidistant pairs come from a sweep over the parameter ranges
-//   where each vertex's distance lies in the bracket, not from all pairs. Each decision is made
-//   at candidate + 1e-10 × the curves' scale to absorb rounding, so the value is within that of
-//   the true distance. Should rounding leave no candidate deciding yes, the result has converged =
+//   after six plain bisection steps have narrowed that bracket. Before them, one decision at
+//   the upper bound records which free-space cells are reachable: the optimal path crosses no
+//   other cell, and for similar curves they form a band around the matching. Reachability
+//   only shrinks as ε falls, so every later decision visits that band alone (narrowed again at
+//   each "yes"), and candidates are collected only on its cells' boundaries. Equidistant pairs
+//   come from a sweep over the parameter ranges where each vertex's distance lies in the
+//   bracket, not from all pairs. Each decision is made at candidate + 1e-10 × the curves'
+//   scale to absorb rounding, so the value is within that of the true distance. Should
+//   rounding leave no candidate deciding yes, the result has converged =
 //   false and carries the proven bracket [value, upper_bound] instead.
-//   Cost: O(n·m) per decision, about 8 + log2(candidates) decisions; the candidate scans are
-//   O(cells in the band) plus a sort per segment.
+//   Cost: two O(n·m) decisions (endpoints, upper bound) and the discrete distance, then about
+//   6 + log2(candidates) decisions and the candidate scans in O(cells in the band) each, plus
+//   a sort per segment.
 // Discrete (Eiter & Mannila, "Computing discrete Fréchet distance", TU Wien CD-TR 94/64,
 // 1994): the coupling distance over vertices only, by dynamic programming in O(n·m) time and
 // O(n + m) memory. It is an upper bound on the continuous distance. Its witness is a vertex
