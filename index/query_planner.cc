@@ -175,10 +175,11 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
 }
 
 // Walks the exhaustive index in lower-bound order, in rounds that grow ×4 from `first_fetch`,
-// handing each stored candidate (not excluded, passing the filter) to `visit`. After each
-// round `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower bound on
-// the exact distance of every shape not drawn yet. Returns whether every stored shape was
-// drawn or ruled out by the bound (so the caller's answer is complete).
+// handing each stored candidate (not excluded, passing the filter) to `visit`. Before each
+// candidate and after each round `enough(unseen_bound)` says whether to stop, where
+// unseen_bound is a lower bound on the exact distance of every shape not drawn yet. Returns
+// whether every stored shape was drawn or ruled out by the bound (so the caller's answer is
+// complete).
 template <typename Visit, typename Enough>
 Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
                              std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
@@ -186,26 +187,28 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
                              Enough enough) {
   Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw);
   if (!scan) return scan.status();
+  // The scan is in sketch order, so every shape not drawn yet has a raw L∞ sketch difference
+  // ≥ the next one's (or the last one drawn), and that bounds its exact distance from below,
+  // less the float rounding of the stored values (relative to the values, |b| ≤ |a| +
+  // difference) and of the difference itself.
+  auto bound_from = [&](double difference) {
+    return std::max(0.0, difference * (1 - 1e-6) -
+                             Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + difference));
+  };
   std::size_t fetch = std::min(budget, first_fetch), drawn = 0;
   while (true) {
     const std::span<const Neighbour> round = scan->next(fetch - drawn);
     drawn += round.size();
     for (const Neighbour& n : round) {
+      // Once this shape is ruled out, so is every later one: none of them is read.
+      if (enough(bound_from(n.distance))) return true;
       if (n.label == excluded_label) continue;
       Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, filter, stats);
       if (!candidate) return candidate.status();
       if (*candidate && !visit(**candidate)) return false;
     }
     if (scan->exhausted()) return true;  // every stored shape was drawn
-    // Every shape not yet drawn has a raw L∞ sketch difference ≥ the last one drawn, and that
-    // bounds its exact distance from below, less the float rounding of the stored values
-    // (relative to the values, |b| ≤ |a| + difference) and of the difference itself.
-    if (!round.empty()) {
-      const double last = round.back().distance;
-      const double unseen_bound = std::max(
-          0.0, last * (1 - 1e-6) - Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + last));
-      if (enough(unseen_bound)) return true;
-    }
+    if (!round.empty() && enough(bound_from(round.back().distance))) return true;
     if (drawn >= budget) return false;
     fetch = std::min(budget, fetch * 4);
   }
