@@ -2,6 +2,9 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
+#include <memory>
+#include <optional>
 #include <vector>
 
 #include "sketch/distance/bounds.h"
@@ -171,23 +174,20 @@ void collect_equidistant(const Path& vertices, const Segments& segments, const W
   }
 }
 
-// Narrows (lo, hi] to the smallest candidate whose decision says yes; returns whether one did.
-// Decisions visit only `band` (recorded at an ε above every candidate), which each "yes"
-// narrows to the band at that candidate. Expected linear work in the candidate count
+// Narrows (lo, hi] to the smallest candidate for which `decides_yes(value)` (the decision
+// at value + slack); returns whether one did. Expected linear work in the candidate count
 // (quickselect), plus log2(count) decisions.
-bool search_candidates(const Path& p, const Path& q, double slack, std::vector<Candidate>& candidates, double& lo,
-                       Candidate& hi, Band& band) {
+template <typename DecidesYes>
+bool search_candidates(std::vector<Candidate>& candidates, double& lo, Candidate& hi, DecidesYes decides_yes) {
   bool found = false;
   auto begin = candidates.begin(), end = candidates.end();
   while (begin < end) {
     auto middle = begin + (end - begin) / 2;
     std::nth_element(begin, middle, end);
-    Band narrower(band.rows.size(), band.columns.size(), p.size(), q.size());
-    if (decide(p, q, middle->value + slack, &band, &narrower)) {
+    if (decides_yes(middle->value)) {
       hi = *middle;
       found = true;
       end = middle;
-      band = std::move(narrower);
     } else {
       lo = middle->value;
       begin = middle + 1;
@@ -214,6 +214,7 @@ Path without_repeats(const Path& path) {
 template <bool kBanded, bool kRecording>
 bool decide_cells(const Path& p, const Path& q, double epsilon, const Band* within, Band* record) {
   const std::size_t n = p.size() - 1, m = q.size() - 1;  // segment counts
+  if (!(epsilon >= 0)) return false;  // no distance is negative (and NaN decides nothing)
   const double e2 = epsilon * epsilon;
   if (squared_distance(p.front(), q.front()) > e2 || squared_distance(p.back(), q.back()) > e2) return false;
 
@@ -300,70 +301,154 @@ Result<Path> curve_of(const Shape& shape) {
 
 bool frechet_at_most(const Path& p, const Path& q, double epsilon) { return decide(p, q, epsilon, nullptr, nullptr); }
 
-DistanceResult frechet(const Path& p, const Path& q) {
-  const double scale = scale_of(p, q);
-  const double slack = 1e-10 * scale;
-  DistanceResult result;
-  const double first = std::sqrt(squared_distance(p.front(), q.front()));
-  const double last = std::sqrt(squared_distance(p.back(), q.back()));
-  Candidate endpoint = first >= last ? Candidate{first, p.front(), q.front()} : Candidate{last, p.back(), q.back()};
-  auto finish = [&](const Candidate& c) {
-    result.value = c.value;
-    result.upper_bound = c.value + slack;
-    result.from = c.from;
-    result.to = c.to;
-    return result;
-  };
-  if (frechet_at_most(p, q, endpoint.value + slack)) return finish(endpoint);
-
-  const DistanceResult discrete = discrete_frechet(p, q);  // an upper bound, decided yes
-  double lo = endpoint.value;
-  Candidate hi{discrete.value, discrete.from, discrete.to};
-  // The band of cells reachable at the top: the optimal path crosses no other cell, and as ε
-  // falls it only narrows, so every later decision visits this band alone (for similar
-  // curves, a strip around the matching instead of the whole diagram).
-  Band band(q.size() - 1, p.size() - 1, p.size(), q.size());
-  if (!decide(p, q, hi.value + slack, nullptr, &band)) {  // rounding only: fall back to every cell
-    band.rows.assign(band.rows.size(), Window{0, p.size()});
-    band.columns.assign(band.columns.size(), Window{0, q.size()});
-  }
-  // Narrow (lo, hi] by plain bisection first: decisions below d_F fail fast, and the candidate
-  // scans then only look at the (now narrow) band and values up to the (now small) bound. The
-  // bound hi then need not be a critical value itself; d_F lies in (lo, hi].
+// What a search has proven so far: d_F lies in (lo, hi.value + slack]; the cells reachable
+// at band_epsilon (a decision said yes there, and hi.value + slack ≤ band_epsilon) form
+// `band`; hi is attained at its witness while hi_is_critical.
+struct FrechetSearch::State {
+  State(const Path& p_in, const Path& q_in)
+      : p(p_in),
+        q(q_in),
+        scale(scale_of(p_in, q_in)),
+        slack(1e-10 * scale),
+        band(q_in.size() - 1, p_in.size() - 1, p_in.size(), q_in.size()) {}
+  const Path& p;
+  const Path& q;
+  double scale, slack;
+  double lo = 0;
+  Candidate hi{0, {}, {}};
   bool hi_is_critical = true;
-  for (int step = 0; step < 6; ++step) {
-    const double middle = (lo + hi.value) / 2;
-    Band narrower(band.rows.size(), band.columns.size(), p.size(), q.size());
-    if (decide(p, q, middle + slack, &band, &narrower)) {
-      hi.value = middle;
-      hi_is_critical = false;
-      band = std::move(narrower);
-    } else {
-      lo = middle;
+  Candidate endpoint{0, {}, {}};
+  Band band;
+  double band_epsilon = 0;
+  int bisections = 0;
+  std::optional<DistanceResult> resolved;  // set when the endpoints already decide the value
+
+  // Records the band at epsilon, where the answer is known to be yes (every cell, should
+  // rounding say otherwise).
+  void record_band(double epsilon) {
+    band_epsilon = epsilon;
+    if (!decide(p, q, epsilon, nullptr, &band)) {
+      band.rows.assign(band.rows.size(), Window{0, p.size()});
+      band.columns.assign(band.columns.size(), Window{0, q.size()});
     }
   }
+
+  // The decision at epsilon, visiting the band alone (at or above band_epsilon the answer is
+  // yes already); "yes" narrows the band to the cells reachable at epsilon.
+  bool decide_in_band(double epsilon) {
+    if (epsilon >= band_epsilon) return true;
+    Band narrower(band.rows.size(), band.columns.size(), p.size(), q.size());
+    if (!decide(p, q, epsilon, &band, &narrower)) return false;
+    band = std::move(narrower);
+    band_epsilon = epsilon;
+    return true;
+  }
+};
+
+namespace {
+
+constexpr int kBisections = 6;
+
+DistanceResult result_at(const Candidate& c, double slack) {
+  return DistanceResult{c.value, c.value + slack, c.from, c.to, true};
+}
+
+}  // namespace
+
+std::optional<FrechetSearch> FrechetSearch::start(const Path& p, const Path& q, double threshold) {
+  auto state = std::make_unique<State>(p, q);
+  const double first = std::sqrt(squared_distance(p.front(), q.front()));
+  const double last = std::sqrt(squared_distance(p.back(), q.back()));
+  state->endpoint = first >= last ? Candidate{first, p.front(), q.front()} : Candidate{last, p.back(), q.back()};
+  state->lo = state->endpoint.value;
+  if (threshold < std::numeric_limits<double>::infinity()) {
+    // The caller's threshold is the upper end: no discrete distance is needed.
+    state->band_epsilon = threshold + state->slack;
+    if (!decide(p, q, state->band_epsilon, nullptr, &state->band)) return std::nullopt;
+    state->hi = Candidate{threshold, state->endpoint.from, state->endpoint.to};
+    state->hi_is_critical = false;
+    if (state->decide_in_band(state->endpoint.value + state->slack)) {
+      state->resolved = result_at(state->endpoint, state->slack);
+    }
+    return FrechetSearch(std::move(state));
+  }
+  if (frechet_at_most(p, q, state->endpoint.value + state->slack)) {
+    state->resolved = result_at(state->endpoint, state->slack);
+    return FrechetSearch(std::move(state));
+  }
+  const DistanceResult discrete = discrete_frechet(p, q);  // an upper bound, attained, decided yes
+  state->hi = Candidate{discrete.value, discrete.from, discrete.to};
+  state->record_band(discrete.value + state->slack);
+  return FrechetSearch(std::move(state));
+}
+
+FrechetSearch::FrechetSearch(std::unique_ptr<State> state) : state_(std::move(state)) {}
+FrechetSearch::FrechetSearch(FrechetSearch&&) noexcept = default;
+FrechetSearch& FrechetSearch::operator=(FrechetSearch&&) noexcept = default;
+FrechetSearch::~FrechetSearch() = default;
+
+double FrechetSearch::lower() const { return state_->resolved ? state_->resolved->value : state_->lo; }
+double FrechetSearch::upper() const {
+  return state_->resolved ? state_->resolved->upper_bound : state_->hi.value + state_->slack;
+}
+
+void FrechetSearch::narrow(int steps) {
+  State& s = *state_;
+  // Plain bisection: decisions below d_F fail fast, and the candidate scans then only look at
+  // the (now narrow) band and values up to the (now small) bound. hi then need not be a
+  // critical value itself; d_F lies in (lo, hi].
+  for (; steps > 0 && s.bisections < kBisections && !s.resolved; --steps, ++s.bisections) {
+    const double middle = (s.lo + s.hi.value) / 2;
+    if (s.decide_in_band(middle + s.slack)) {
+      s.hi.value = middle;
+      s.hi_is_critical = false;
+    } else {
+      s.lo = middle;
+    }
+  }
+}
+
+bool FrechetSearch::at_most(double epsilon) {
+  State& s = *state_;
+  if (s.resolved) return s.resolved->value <= epsilon;
+  if (epsilon >= s.hi.value) return true;
+  if (epsilon + s.slack <= s.lo) return false;
+  if (s.decide_in_band(epsilon + s.slack)) {
+    s.hi = Candidate{epsilon, s.endpoint.from, s.endpoint.to};
+    s.hi_is_critical = false;
+    return true;
+  }
+  s.lo = epsilon + s.slack;
+  return false;
+}
+
+DistanceResult FrechetSearch::value() {
+  narrow(kBisections);
+  State& s = *state_;
+  if (s.resolved) return *s.resolved;
   // Decisions were made at value + slack, so d_F ≤ hi + slack: collect candidates up to there,
   // on the boundaries of the band's cells.
-  const double bound = hi.value + slack;
-  const Segments p_segments(p), q_segments(q);
+  const double bound = s.hi.value + s.slack;
+  const Segments p_segments(s.p), q_segments(s.q);
+  auto decides_yes = [&s](double value) { return s.decide_in_band(value + s.slack); };
   std::vector<Candidate> candidates;
-  collect_vertex_segment(p, q_segments, band.rows, true, lo, bound, candidates);
-  collect_vertex_segment(q, p_segments, band.columns, false, lo, bound, candidates);
-  bool found = search_candidates(p, q, slack, candidates, lo, hi, band);
+  collect_vertex_segment(s.p, q_segments, s.band.rows, true, s.lo, bound, candidates);
+  collect_vertex_segment(s.q, p_segments, s.band.columns, false, s.lo, bound, candidates);
+  bool found = search_candidates(candidates, s.lo, s.hi, decides_yes);
   candidates.clear();
-  collect_equidistant(p, q_segments, band.rows, true, lo, found ? hi.value : bound, 1e-8 * scale, candidates);
-  collect_equidistant(q, p_segments, band.columns, false, lo, found ? hi.value : bound, 1e-8 * scale, candidates);
-  found = search_candidates(p, q, slack, candidates, lo, hi, band) || found;
-  if (!found && !hi_is_critical) {
+  const double top = found ? s.hi.value : bound;
+  collect_equidistant(s.p, q_segments, s.band.rows, true, s.lo, top, 1e-8 * s.scale, candidates);
+  collect_equidistant(s.q, p_segments, s.band.columns, false, s.lo, top, 1e-8 * s.scale, candidates);
+  found = search_candidates(candidates, s.lo, s.hi, decides_yes) || found;
+  if (!found && !s.hi_is_critical) {
     // No candidate decided yes: only rounding can cause this. Report the proven bracket.
-    result.converged = false;
-    result.value = lo;
-    result.upper_bound = bound;
-    result.from = discrete.from;
-    result.to = discrete.to;
-    return result;
+    return DistanceResult{s.lo, bound, s.hi.from, s.hi.to, false};
   }
-  return finish(hi);
+  return result_at(s.hi, s.slack);
+}
+
+DistanceResult frechet(const Path& p, const Path& q) {
+  return FrechetSearch::start(p, q, std::numeric_limits<double>::infinity())->value();
 }
 
 namespace {

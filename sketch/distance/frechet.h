@@ -33,6 +33,9 @@
 // pair at exactly the distance (the first in order), not necessarily on an optimal coupling.
 #pragma once
 
+#include <memory>
+#include <optional>
+
 #include "sketch/distance/hausdorff.h"  // DistanceResult
 #include "sketch/geometry/shape.h"
 
@@ -48,6 +51,43 @@ Result<DistanceResult> discrete_frechet(const Shape& p, const Shape& q);
 // The same on curves already extracted with curve_of (at least two vertices, no repeats).
 bool frechet_at_most(const Path& p, const Path& q, double epsilon);
 DistanceResult frechet(const Path& p, const Path& q);
+
+// frechet(P, Q) in steps, for a caller that ranks many curves against one and needs values
+// only for the nearest: start() refuses a curve farther than a threshold and keeps the band
+// of reachable cells, narrow() halves the proven bracket with decisions inside that band,
+// at_most() compares with any ε (inside the band, or at once outside the bracket), and value()
+// completes the search. Started at threshold ∞ and run to value(), it computes exactly what
+// frechet(P, Q) does (which is implemented so). The curves (as from curve_of) must outlive it.
+//
+// Refusals compare with the value, not d_F itself: value() may lie below d_F by up to the
+// decisions' slack (1e-10 × the curves' scale), so a curve is refused only when d_F exceeds
+// the threshold by more than that. A ranking that compares values therefore never loses a tie
+// (two copies of one curve get the same value, and neither is refused against the other).
+class FrechetSearch {
+ public:
+  // The search, or nullopt when value() would exceed threshold. Cost: one O(n·m) decision,
+  // plus the discrete distance when threshold is ∞ (its upper bound then starts the bracket).
+  static std::optional<FrechetSearch> start(const Path& p, const Path& q, double threshold);
+  FrechetSearch(FrechetSearch&&) noexcept;
+  FrechetSearch& operator=(FrechetSearch&&) noexcept;
+  ~FrechetSearch();
+
+  // The proven bracket: lower() < d_F ≤ upper() (lower() = d_F once the endpoints decide it).
+  double lower() const;
+  double upper() const;
+  // Up to `steps` of the six bisection steps the value search makes anyway (so they are not
+  // wasted if value() follows).
+  void narrow(int steps);
+  // False when value() would exceed epsilon (as start() refuses); narrows the bracket.
+  bool at_most(double epsilon);
+  // The value, as frechet(P, Q) documents it.
+  DistanceResult value();
+
+ private:
+  struct State;
+  explicit FrechetSearch(std::unique_ptr<State> state);
+  std::unique_ptr<State> state_;
+};
 DistanceResult discrete_frechet(const Path& p, const Path& q);
 
 }  // namespace waymark

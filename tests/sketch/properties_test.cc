@@ -2,6 +2,8 @@
 // d_H ≤ d_F ≤ discrete d_F, the sketch lower bound, and decisions agreeing with values.
 #include <catch2/catch.hpp>
 #include <cmath>
+#include <limits>
+#include <optional>
 
 #include "sketch/distance/bounds.h"
 #include "sketch/distance/frechet.h"
@@ -102,6 +104,54 @@ TEST_CASE("DecisionsAgreeWithValuesOnNearbyCurves") {
     CHECK_FALSE(*frechet_at_most(a, b, f * (1 - 1e-7) - 1e-9));
     CHECK(f <= discrete_frechet(a, b)->value + 1e-9);
   }
+}
+
+TEST_CASE("StagedFrechetSearchComputesTheSameValue") {
+  // Consistency with frechet() itself (whose values are checked against GEOS and densified
+  // curves in frechet_test.cc): the query planner starts searches at the k-th best so far,
+  // narrows them and completes only some, and exact mode must still equal the full scan bit for
+  // bit.
+  SeededRandom random(37);
+  for (int trial = 0; trial < 300; ++trial) {
+    const std::size_t vertices = 8 + random.below(70);
+    const Shape base = trial % 3 == 0 ? testing::random_star_polygon(random, vertices) : testing::random_walk(random, vertices);
+    const Shape a = testing::jittered(base, random, 0.05 + 0.1 * (trial % 4));
+    const Shape b = trial % 5 == 0 ? testing::random_walk(random, vertices) : testing::jittered(base, random, 0.05);
+    const Result<Path> p = curve_of(a), q = curve_of(b);
+    REQUIRE((p.is_ok() && q.is_ok()));
+    const double f = frechet(*p, *q).value;
+    INFO("trial " << trial << ": frechet " << f);
+
+    std::optional<FrechetSearch> search = FrechetSearch::start(*p, *q, f * (1 + 0.01 * (trial % 30)) + 1e-12);
+    REQUIRE(search.has_value());
+    search->narrow(trial % 7);
+    CHECK(search->lower() <= f);
+    CHECK(search->upper() >= f);
+    if (trial % 2 == 0) CHECK(search->at_most(f * (1 + 1e-3)));
+    if (trial % 4 == 1) CHECK(search->at_most(f));  // a tie is never refused
+    const DistanceResult staged = search->value();
+    CHECK(staged.converged);
+    CHECK(staged.value == f);
+
+    // Started at ∞, narrowed, then compared from below: refused, and still the same value after.
+    std::optional<FrechetSearch> unbounded = FrechetSearch::start(*p, *q, std::numeric_limits<double>::infinity());
+    REQUIRE(unbounded.has_value());
+    unbounded->narrow(trial % 3);
+    CHECK_FALSE(unbounded->at_most(f * (1 - 1e-6) - 1e-9));
+    CHECK(unbounded->value().value == f);
+
+    CHECK_FALSE(FrechetSearch::start(*p, *q, f * (1 - 1e-6) - 1e-9).has_value());
+    CHECK(FrechetSearch::start(*p, *q, f).has_value());  // the value itself is never refused
+  }
+}
+
+TEST_CASE("FrechetDecisionRefusesNegativeThresholds") {
+  // Common practice, no source: no distance is below zero, so even identical curves are
+  // farther than −1 (a squared threshold would have accepted them).
+  const Path curve{{0, 0}, {1, 0}, {1, 1}};
+  CHECK(frechet_at_most(curve, curve, 0));
+  CHECK_FALSE(frechet_at_most(curve, curve, -1));
+  CHECK_FALSE(FrechetSearch::start(curve, curve, -1).has_value());
 }
 
 TEST_CASE("SketchLowerBoundNeverExceedsHausdorff") {
