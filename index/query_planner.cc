@@ -164,6 +164,29 @@ class NearestSelection {
 
   // The answer, nearest first.
   std::vector<QueryHit> finish() {
+    complete_held();
+    return top_.take();
+  }
+
+ private:
+  // Bisection steps a held Fréchet candidate gets on arrival, of the six its value takes:
+  // enough that its upper end is close to its value. Fréchet fast p50 at 200k graph
+  // (index_benchmark 200000 64 64 500 graph 0 0), by steps 0–6: 6.05, 5.15, 3.79, 3.51,
+  // 3.34, 3.65, 3.39 ms (one run each; 4–6 are within the machine's noise of each other).
+  static constexpr int kStepsOnArrival = 4;
+  // Held candidates are completed once this many wait, so that memory stays bounded when
+  // thousands tie (an exact-mode query for a part stored in many copies).
+  static constexpr std::size_t kMostHeld = 256;
+
+  struct Held {
+    StoredShape stored;
+    CandidateBounds bounds;
+    double sketch_distance;
+    std::optional<FrechetSearch> search;  // over bounds.curve, which stays put (a deque)
+  };
+
+  // Values for the held candidates that can still enter the answer, in order of upper end.
+  void complete_held() {
     std::vector<Held*> order;
     for (Held& held : held_) order.push_back(&held);
     std::sort(order.begin(), order.end(), [](const Held* a, const Held* b) { return a->search->upper() < b->search->upper(); });
@@ -179,22 +202,7 @@ class NearestSelection {
       top_.offer({std::move(held->stored.id), distance, held->sketch_distance, std::move(held->stored.metadata)});
     }
     held_.clear();
-    return top_.take();
   }
-
- private:
-  // Bisection steps a held Fréchet candidate gets on arrival, of the six its value takes:
-  // enough that its upper end is close to its value. Fréchet fast p50 at 200k graph
-  // (index_benchmark 200000 64 64 500 graph 0 0), by steps 0–6: 6.05, 5.15, 3.79, 3.51,
-  // 3.34, 3.65, 3.39 ms (one run each; 4–6 are within the machine's noise of each other).
-  static constexpr int kStepsOnArrival = 4;
-
-  struct Held {
-    StoredShape stored;
-    CandidateBounds bounds;
-    double sketch_distance;
-    std::optional<FrechetSearch> search;  // over bounds.curve, which stays put (a deque)
-  };
 
   void hold(StoredShape& stored, double sketch_distance) {
     std::optional<CandidateBounds> bounds = bounds_of(query_, stored, metric_);
@@ -213,6 +221,7 @@ class NearestSelection {
     }
     held.search->narrow(kStepsOnArrival);
     keep_upper(held.search->upper());
+    if (held_.size() >= kMostHeld) complete_held();
   }
 
   // Keeps the k smallest upper bounds in a max-heap, whose top is the threshold.

@@ -63,6 +63,48 @@ TEST_CASE("ExactModeMatchesFullScan") {
   }
 }
 
+TEST_CASE("ManyTiedCopiesKeepTheSmallestIdsAndMatchTheFullScan") {
+  // A part stored 700 times: every copy is at the same distance from the query, so the answer
+  // is decided by id alone, and the Fréchet ranking must hold more tied candidates than it
+  // keeps waiting at once (it completes them in batches).
+  TemporaryDirectory directory;
+  Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
+  REQUIRE(collection.is_ok());
+  std::vector<ShapeRecord> records = synthetic_records(300, 11);
+  const Shape part = records.front().shape;
+  std::vector<ShapeRecord> copies;
+  for (int i = 0; i < 700; ++i) {
+    char id[16];
+    std::snprintf(id, sizeof id, "copy-%04d", i);
+    copies.push_back({id, part, "{}"});
+  }
+  // Stored in a seeded random order, so that the smallest ids arrive spread among the others.
+  SeededRandom random(12);
+  for (std::size_t i = copies.size() - 1; i > 0; --i) std::swap(copies[i], copies[random.below(i + 1)]);
+  REQUIRE((*collection)->upsert(records).is_ok());
+  REQUIRE((*collection)->upsert(copies).is_ok());
+  Shape query = part;
+  for (Point& p : query.parts[0]) p.y += 0.02;
+  for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
+    QueryOptions options;
+    options.metric = metric;
+    options.exact = true;
+    Result<QueryAnswer> exact = (*collection)->nearest(query, options);
+    Result<QueryAnswer> scan = (*collection)->nearest_by_full_scan(query, options);
+    REQUIRE((exact.is_ok() && scan.is_ok()));
+    INFO(metric_name(metric) << ": exact evaluations " << exact->stats.exact_evaluations);
+    CHECK(exact->certified);
+    require_same(*exact, *scan);
+    REQUIRE(exact->hits.size() == 10);
+    for (int i = 0; i < 10; ++i) {
+      char id[16];
+      std::snprintf(id, sizeof id, "copy-%04d", i);
+      CHECK(exact->hits[i].id == id);
+      CHECK(exact->hits[i].distance == exact->hits[0].distance);
+    }
+  }
+}
+
 TEST_CASE("FastModeRecallOnSyntheticShapes") {
   TemporaryDirectory directory;
   const std::vector<ShapeRecord> records = synthetic_records(2000, 7);
