@@ -35,6 +35,24 @@ TEST_CASE("ShapeCodecRoundTripsAndRejectsDamage") {
   CHECK(decode_shape(huge).status().code() == StatusCode::data_loss);
 }
 
+namespace {
+
+// The query in exact mode, after checking that it is certified and equal to the full scan.
+QueryAnswer exact_answer_equal_to_full_scan(const Collection& collection, const Shape& query, Metric metric) {
+  QueryOptions options;
+  options.metric = metric;
+  options.exact = true;
+  Result<QueryAnswer> exact = collection.nearest(query, options);
+  Result<QueryAnswer> scan = collection.nearest_by_full_scan(query, options);
+  REQUIRE((exact.is_ok() && scan.is_ok()));
+  INFO(metric_name(metric) << ": exact evaluations " << exact->stats.exact_evaluations);
+  CHECK(exact->certified);
+  require_same(*exact, *scan);
+  return *exact;
+}
+
+}  // namespace
+
 TEST_CASE("ExactModeMatchesFullScan") {
   TemporaryDirectory directory;
   Result<std::unique_ptr<Collection>> collection = Collection::create(directory.path, settings_with(64));
@@ -49,16 +67,9 @@ TEST_CASE("ExactModeMatchesFullScan") {
     for (int q = 0; q < 8; ++q) {
       Shape query = records[random.below(records.size())].shape;
       for (Point& p : query.parts[0]) p.x += 0.1 * random.uniform();
-      QueryOptions options;
-      options.metric = metric;
-      options.exact = true;
-      Result<QueryAnswer> exact = (*collection)->nearest(query, options);
-      Result<QueryAnswer> scan = (*collection)->nearest_by_full_scan(query, options);
-      REQUIRE((exact.is_ok() && scan.is_ok()));
-      INFO(metric_name(metric) << " query " << q << ": exact evaluations " << exact->stats.exact_evaluations);
-      CHECK(exact->certified);
-      require_same(*exact, *scan);
-      CHECK(exact->stats.exact_evaluations < 1500 / 2);  // the bounds did prune
+      INFO("query " << q);
+      const QueryAnswer exact = exact_answer_equal_to_full_scan(**collection, query, metric);
+      CHECK(exact.stats.exact_evaluations < 1500 / 2);  // the bounds did prune
     }
   }
 }
@@ -86,21 +97,13 @@ TEST_CASE("ManyTiedCopiesKeepTheSmallestIdsAndMatchTheFullScan") {
   Shape query = part;
   for (Point& p : query.parts[0]) p.y += 0.02;
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
-    QueryOptions options;
-    options.metric = metric;
-    options.exact = true;
-    Result<QueryAnswer> exact = (*collection)->nearest(query, options);
-    Result<QueryAnswer> scan = (*collection)->nearest_by_full_scan(query, options);
-    REQUIRE((exact.is_ok() && scan.is_ok()));
-    INFO(metric_name(metric) << ": exact evaluations " << exact->stats.exact_evaluations);
-    CHECK(exact->certified);
-    require_same(*exact, *scan);
-    REQUIRE(exact->hits.size() == 10);
+    const QueryAnswer exact = exact_answer_equal_to_full_scan(**collection, query, metric);
+    REQUIRE(exact.hits.size() == 10);
     for (int i = 0; i < 10; ++i) {
       char id[16];
       std::snprintf(id, sizeof id, "copy-%04d", i);
-      CHECK(exact->hits[i].id == id);
-      CHECK(exact->hits[i].distance == exact->hits[0].distance);
+      CHECK(exact.hits[i].id == id);
+      CHECK(exact.hits[i].distance == exact.hits[0].distance);
     }
   }
 }

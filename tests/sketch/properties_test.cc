@@ -4,6 +4,7 @@
 #include <cmath>
 #include <limits>
 #include <optional>
+#include <utility>
 
 #include "sketch/distance/bounds.h"
 #include "sketch/distance/frechet.h"
@@ -85,16 +86,20 @@ TEST_CASE("DecisionsAgreeWithValues") {
   }
 }
 
+// Two jittered copies of one random star polygon or walk: the pairs kNN re-ranking sees.
+std::pair<Shape, Shape> jittered_pair(SeededRandom& random, int trial, std::size_t vertices) {
+  const Shape base = trial % 3 == 0 ? testing::random_star_polygon(random, vertices) : testing::random_walk(random, vertices);
+  Shape a = testing::jittered(base, random, 0.05 + 0.1 * (trial % 4));
+  return {std::move(a), testing::jittered(base, random, 0.05)};
+}
+
 TEST_CASE("DecisionsAgreeWithValuesOnNearbyCurves") {
   // Jittered copies, as kNN re-ranking sees them: the reachable free space is a narrow band, and
   // the value search only scans that band's cell boundaries. A candidate wrongly left out would
   // make the returned value a later critical value, which the decision below it would accept.
   SeededRandom random(35);
   for (int trial = 0; trial < 300; ++trial) {
-    const std::size_t vertices = 8 + random.below(90);
-    const Shape base = trial % 3 == 0 ? testing::random_star_polygon(random, vertices) : testing::random_walk(random, vertices);
-    const Shape a = testing::jittered(base, random, 0.05 + 0.1 * (trial % 4));
-    const Shape b = testing::jittered(base, random, 0.05);
+    const auto [a, b] = jittered_pair(random, trial, 8 + random.below(90));
     const Result<DistanceResult> value = frechet(a, b);
     REQUIRE(value.is_ok());
     CHECK(value->converged);
@@ -114,9 +119,8 @@ TEST_CASE("StagedFrechetSearchComputesTheSameValue") {
   SeededRandom random(37);
   for (int trial = 0; trial < 300; ++trial) {
     const std::size_t vertices = 8 + random.below(70);
-    const Shape base = trial % 3 == 0 ? testing::random_star_polygon(random, vertices) : testing::random_walk(random, vertices);
-    const Shape a = testing::jittered(base, random, 0.05 + 0.1 * (trial % 4));
-    const Shape b = trial % 5 == 0 ? testing::random_walk(random, vertices) : testing::jittered(base, random, 0.05);
+    auto [a, b] = jittered_pair(random, trial, vertices);
+    if (trial % 5 == 0) b = testing::random_walk(random, vertices);  // and some unrelated pairs
     const Result<Path> p = curve_of(a), q = curve_of(b);
     REQUIRE((p.is_ok() && q.is_ok()));
     const double f = frechet(*p, *q).value;
