@@ -152,14 +152,13 @@ class NearestSelection {
   double threshold() const { return uppers_.size() < k_ ? kInfinity : uppers_.top(); }
 
   void consider(StoredShape& stored) {
-    const double sketch_distance = query_.generation->sketcher.weighted_distance_of_unweighted(query_.raw, stored.raw);
-    if (metric_ == Metric::frechet) return hold(stored, sketch_distance);
-    const std::optional<double> distance =
-        metric_ == Metric::sketch ? std::optional<double>(sketch_distance)
-                                  : distance_within(query_, stored, metric_, threshold(), stats_);
+    if (metric_ == Metric::frechet) return hold(stored);
+    const std::optional<double> distance = metric_ == Metric::sketch
+                                               ? std::optional<double>(sketch_distance_of(stored))
+                                               : distance_within(query_, stored, metric_, threshold(), stats_);
     if (!distance) return;
     keep_upper(*distance);
-    top_.offer({std::move(stored.id), *distance, sketch_distance, std::move(stored.metadata)});
+    top_.offer({std::move(stored.id), *distance, sketch_distance_of(stored), std::move(stored.metadata)});
   }
 
   // The answer, nearest first.
@@ -181,7 +180,6 @@ class NearestSelection {
   struct Held {
     StoredShape stored;
     CandidateBounds bounds;
-    double sketch_distance;
     std::optional<FrechetSearch> search;  // over bounds.curve, which stays put (a deque)
   };
 
@@ -199,12 +197,17 @@ class NearestSelection {
       }
       ++stats_.exact_evaluations;
       const double distance = held->search->value().value;
-      top_.offer({std::move(held->stored.id), distance, held->sketch_distance, std::move(held->stored.metadata)});
+      top_.offer({std::move(held->stored.id), distance, sketch_distance_of(held->stored), std::move(held->stored.metadata)});
     }
     held_.clear();
   }
 
-  void hold(StoredShape& stored, double sketch_distance) {
+  // Computed only for shapes kept: most candidates are refused.
+  double sketch_distance_of(const StoredShape& stored) const {
+    return query_.generation->sketcher.weighted_distance_of_unweighted(query_.raw, stored.raw);
+  }
+
+  void hold(StoredShape& stored) {
     std::optional<CandidateBounds> bounds = bounds_of(query_, stored, metric_);
     if (!bounds) {
       ++stats_.not_applicable;
@@ -212,7 +215,7 @@ class NearestSelection {
     }
     const double threshold_now = threshold();
     if (ruled_out_by_bounds(*bounds, threshold_now, stats_)) return;
-    Held& held = held_.emplace_back(Held{std::move(stored), std::move(*bounds), sketch_distance, std::nullopt});
+    Held& held = held_.emplace_back(Held{std::move(stored), std::move(*bounds), std::nullopt});
     held.search = FrechetSearch::start(*query_.curve, *held.bounds.curve, threshold_now);
     if (!held.search) {
       ++stats_.pruned_by_decision;

@@ -5,6 +5,7 @@
 #include <limits>
 #include <memory>
 #include <optional>
+#include <utility>
 #include <vector>
 
 #include "sketch/distance/bounds.h"
@@ -89,7 +90,14 @@ using Windows = std::vector<Window>;
 // and columns (one per segment of P).
 struct Band {
   Band(std::size_t row_count, std::size_t column_count, std::size_t p_vertices, std::size_t q_vertices)
-      : rows(row_count, Window{p_vertices, 0}), columns(column_count, Window{q_vertices, 0}) {}
+      : rows(row_count), columns(column_count) {
+    clear(p_vertices, q_vertices);
+  }
+  // No cell: every window empty (begin past end), as a recording decision expects.
+  void clear(std::size_t p_vertices, std::size_t q_vertices) {
+    rows.assign(rows.size(), Window{p_vertices, 0});
+    columns.assign(columns.size(), Window{q_vertices, 0});
+  }
   Windows rows, columns;
 };
 
@@ -310,7 +318,8 @@ struct FrechetSearch::State {
         q(q_in),
         scale(scale_of(p_in, q_in)),
         slack(1e-10 * scale),
-        band(q_in.size() - 1, p_in.size() - 1, p_in.size(), q_in.size()) {}
+        band(q_in.size() - 1, p_in.size() - 1, p_in.size(), q_in.size()),
+        narrower(band) {}
   const Path& p;
   const Path& q;
   double scale, slack;
@@ -319,6 +328,7 @@ struct FrechetSearch::State {
   bool hi_is_critical = true;
   Candidate endpoint{0, {}, {}};
   Band band;
+  Band narrower;  // where a decision records its band, swapped in on "yes" (no allocation)
   double band_epsilon = 0;
   int bisections = 0;
   std::optional<DistanceResult> resolved;  // set when the endpoints already decide the value
@@ -337,9 +347,9 @@ struct FrechetSearch::State {
   // yes already); "yes" narrows the band to the cells reachable at epsilon.
   bool decide_in_band(double epsilon) {
     if (epsilon >= band_epsilon) return true;
-    Band narrower(band.rows.size(), band.columns.size(), p.size(), q.size());
+    narrower.clear(p.size(), q.size());
     if (!decide(p, q, epsilon, &band, &narrower)) return false;
-    band = std::move(narrower);
+    std::swap(band, narrower);
     band_epsilon = epsilon;
     return true;
   }
