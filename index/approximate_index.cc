@@ -129,15 +129,19 @@ Result<IndexKind> parse_index_kind(const std::string& name) {
   return invalid_argument("unknown index kind '" + name + "' (expected exhaustive, graph or partitioned)", "index");
 }
 
-ApproximateIndex::ApproximateIndex(IndexKind kind, std::vector<double> root_weights, ApproximateIndexSettings settings)
-    : kind_(kind), root_weights_(std::move(root_weights)), settings_(settings), fresh_(root_weights_.size()) {}
+ApproximateIndex::ApproximateIndex(IndexKind kind, std::vector<double> root_weights, std::size_t dimension,
+                                   ApproximateIndexSettings settings)
+    : kind_(kind), root_weights_(std::move(root_weights)), dimension_(dimension), settings_(settings), fresh_(dimension) {}
 
 ApproximateIndex::~ApproximateIndex() = default;
 
 std::vector<float> ApproximateIndex::weighted(std::span<const float> raw) const {
-  std::vector<float> out(raw.size());
-  for (std::size_t i = 0; i < raw.size(); ++i) {
-    out[i] = static_cast<float>(raw[i] * root_weights_[i % root_weights_.size()]);
+  const std::size_t compared = root_weights_.size(), count = raw.size() / dimension_;
+  std::vector<float> out(count * compared);
+  for (std::size_t row = 0; row < count; ++row) {
+    for (std::size_t i = 0; i < compared; ++i) {
+      out[row * compared + i] = static_cast<float>(raw[row * dimension_ + i] * root_weights_[i]);
+    }
   }
   return out;
 }
@@ -247,7 +251,7 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
     }
   }
   // Fresh vectors, nearest by L∞; a label can be in both only while a build is swapping in.
-  Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query);
+  Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query, root_weights_.size());
   if (!fresh) return fresh.status();
   std::unordered_set<std::int64_t> seen;
   for (const Neighbour& n : out) seen.insert(n.label);
@@ -421,7 +425,7 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
   std::unordered_set<std::int64_t> stored;
   std::vector<std::int64_t> fresh_labels;
   std::vector<float> fresh_vectors;
-  const std::size_t dimension = root_weights_.size();
+  const std::size_t dimension = dimension_;
   for (std::size_t i = 0; i < all.labels.size(); ++i) {
     stored.insert(all.labels[i]);
     if (in_snapshot.contains(all.labels[i])) continue;

@@ -61,8 +61,10 @@ struct ApproximateIndexStatus {
 
 class ApproximateIndex {
  public:
-  // kind is graph or partitioned; root_weights has one entry per dimension (sqrt(w_i)).
-  ApproximateIndex(IndexKind kind, std::vector<double> root_weights, ApproximateIndexSettings settings = {});
+  // kind is graph or partitioned. Raw vectors have `dimension` values; the index compares the
+  // first root_weights.size() (≤ dimension) of them, each times its root weight (sqrt(w_i)).
+  ApproximateIndex(IndexKind kind, std::vector<double> root_weights, std::size_t dimension,
+                   ApproximateIndexSettings settings = {});
   ~ApproximateIndex();
   ApproximateIndex(const ApproximateIndex&) = delete;
   ApproximateIndex& operator=(const ApproximateIndex&) = delete;
@@ -106,10 +108,12 @@ class ApproximateIndex {
   std::size_t memory_bytes() const;
 
  private:
+  // The compared values of each raw vector in `raw`, weighted: root_weights_.size() per vector.
   std::vector<float> weighted(std::span<const float> raw) const;
 
   IndexKind kind_;
   std::vector<double> root_weights_;
+  std::size_t dimension_;  // of the raw vectors
   ApproximateIndexSettings settings_;
   mutable std::shared_mutex mutex_;
   std::unique_ptr<faiss::Index> built_;        // guarded by mutex_

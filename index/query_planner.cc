@@ -27,18 +27,20 @@ const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", 
 // query holds that generation to its end, so it never compares sketches of two.
 struct PreparedQuery {
   PreparedQuery(const Shape& framed, std::shared_ptr<const Generation> generation_in)
-      : generation(std::move(generation_in)),
-        shape(framed),
-        prepared(framed),
-        raw(generation->sketcher.unweighted(generation->sketcher.sketch(framed))) {
+      : generation(std::move(generation_in)), shape(framed), prepared(framed) {
+    generation->append_index_vector(generation->sketcher.sketch(framed), framed, Frame::absolute, raw);
     if (Result<Path> path = curve_of(framed)) curve = std::move(*path);
-    for (float value : raw) largest_raw = std::max<double>(largest_raw, value);
+    for (float value : raw) largest_raw = std::max<double>(largest_raw, std::fabs(value));
+  }
+  // The leading values of an index vector that are landmark distances.
+  std::span<const float> landmark_distances(std::span<const float> index_vector) const {
+    return index_vector.first(generation->landmark_count());
   }
   std::shared_ptr<const Generation> generation;
   Shape shape;
   PreparedShape prepared;
-  std::vector<float> raw;  // unweighted landmark distances: what the index is searched with
-  double largest_raw = 0;
+  std::vector<float> raw;  // the index vector (Generation): what the indexes are searched with
+  double largest_raw = 0;  // largest magnitude in raw
   std::optional<Path> curve;  // when the query is a single curve
 };
 
@@ -63,6 +65,12 @@ class TopHits {
   std::vector<QueryHit> hits_;
 };
 
+// The weighted landmark (sketch) distance reported with each hit.
+double sketch_distance(const PreparedQuery& query, const StoredShape& stored) {
+  return query.generation->sketcher.weighted_distance_of_unweighted(query.landmark_distances(query.raw),
+                                                                    query.landmark_distances(stored.raw));
+}
+
 // The lower bounds of a stored shape against the query, and its curve for the Fréchet metrics.
 struct CandidateBounds {
   std::optional<Path> curve;
@@ -78,7 +86,8 @@ std::optional<CandidateBounds> bounds_of(const PreparedQuery& query, const Store
     if (!path) return std::nullopt;
     bounds.curve = std::move(*path);
   }
-  bounds.sketch = Sketcher::unweighted_linf_lower_bound(query.raw, stored.raw);
+  bounds.sketch = Sketcher::unweighted_linf_lower_bound(query.landmark_distances(query.raw),
+                                                        query.landmark_distances(stored.raw));
   bounds.cheap = bounding_box_lower_bound(query.prepared.box, bounding_box(stored.shape));
   if (bounds.curve) {
     bounds.cheap = std::max(bounds.cheap, frechet_endpoint_lower_bound(query.curve->front(), query.curve->back(),
@@ -204,7 +213,7 @@ class NearestSelection {
 
   // Computed only for shapes kept: most candidates are refused.
   double sketch_distance_of(const StoredShape& stored) const {
-    return query_.generation->sketcher.weighted_distance_of_unweighted(query_.raw, stored.raw);
+    return sketch_distance(query_, stored);
   }
 
   void hold(StoredShape& stored) {
@@ -295,7 +304,8 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
   return std::optional<StoredShape>(std::move(*candidate));
 }
 
-// Walks the exhaustive index in lower-bound order, in rounds that grow ×4 from `first_fetch`,
+// Walks the exhaustive index in lower-bound order (L∞ over the index-vector values that bound
+// `metric`: Generation::compared_dimensions), in rounds that grow ×4 from `first_fetch`,
 // handing each stored candidate (not excluded, passing the filter) to `visit`. Before each
 // candidate and after each round `enough(unseen_bound)` says whether to stop, where
 // unseen_bound is a lower bound on the exact distance of every shape not drawn yet. Returns
@@ -303,13 +313,13 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
 // complete).
 template <typename Visit, typename Enough>
 Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
-                             std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
+                             Metric metric, std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
                              std::size_t first_fetch, std::size_t budget, QueryStats& stats, Visit visit,
                              Enough enough) {
-  Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw);
+  Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw, query.generation->compared_dimensions(metric));
   if (!scan) return scan.status();
-  // The scan is in sketch order, so every shape not drawn yet has a raw L∞ sketch difference
-  // ≥ the next one's (or the last one drawn), and that bounds its exact distance from below,
+  // The scan is in that order, so every shape not drawn yet has an L∞ difference ≥ the next
+  // one's (or the last one drawn), and that bounds its exact distance from below,
   // less the float rounding of the stored values (relative to the values, |b| ≤ |a| +
   // difference) and of the difference itself.
   auto bound_from = [&](double difference) {
@@ -365,11 +375,14 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     if (!candidates) return candidates.status();
     std::vector<Neighbour> by_bound;
     by_bound.reserve(candidates->size());
+    const std::size_t compared = query.generation->compared_dimensions(options.metric);
     for (const Neighbour& n : *candidates) {
       if (n.label == excluded_label) continue;
       Result<std::vector<float>> raw = query.generation->index.vector_of(n.label);
       if (!raw) continue;  // a tombstone: deleted or replaced since the build
-      by_bound.push_back({n.label, static_cast<float>(Sketcher::unweighted_linf_lower_bound(query.raw, *raw))});
+      const double bound = Sketcher::unweighted_linf_lower_bound(std::span(query.raw).first(compared),
+                                                                 std::span(*raw).first(compared));
+      by_bound.push_back({n.label, static_cast<float>(bound)});
     }
     std::sort(by_bound.begin(), by_bound.end(),
               [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
@@ -389,7 +402,8 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
   // Fast and exact mode walk alike and stop once certified; they differ only in the budget.
   // Metric::sketch has no exact distance to certify against: it stops only at the budget.
   Result<bool> complete = walk_candidates(
-      state, query, excluded_label, *filter, std::max<std::size_t>(4 * options.k, 32), budget, answer.stats,
+      state, query, options.metric, excluded_label, *filter, std::max<std::size_t>(4 * options.k, 32), budget,
+      answer.stats,
       [&](StoredShape& candidate) {
         selection.consider(candidate);
         return true;
@@ -442,14 +456,12 @@ Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& o
   QueryAnswer answer;
   bool truncated = false;
   Result<bool> complete = walk_candidates(
-      *state_, prepared, std::nullopt, *filter, 64, prepared.generation->index.size(), answer.stats,
+      *state_, prepared, options.metric, std::nullopt, *filter, 64, prepared.generation->index.size(), answer.stats,
       [&](const StoredShape& candidate) {
         if (std::optional<double> distance =
                 distance_within(prepared, candidate, options.metric, options.radius, answer.stats);
             distance && *distance <= options.radius) {
-          answer.hits.push_back({candidate.id, *distance,
-                                 prepared.generation->sketcher.weighted_distance_of_unweighted(prepared.raw, candidate.raw),
-                                 candidate.metadata});
+          answer.hits.push_back({candidate.id, *distance, sketch_distance(prepared, candidate), candidate.metadata});
           if (answer.hits.size() >= options.max_results) {
             truncated = true;
             return false;
@@ -483,13 +495,12 @@ Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const Q
     stored->raw = std::move(*raw);
     stored->shape = apply_frame(stored->shape, state_->settings.frame);
     ++answer.stats.candidates_fetched;
-    const double sketch_distance =
-        prepared.generation->sketcher.weighted_distance_of_unweighted(prepared.raw, stored->raw);
+    const double sketch = sketch_distance(prepared, *stored);
     // Threshold ∞: no bound or decision can refuse, so every shape gets its exact value.
     const std::optional<double> distance =
-        options.metric == Metric::sketch ? std::optional<double>(sketch_distance)
+        options.metric == Metric::sketch ? std::optional<double>(sketch)
                                          : distance_within(prepared, *stored, options.metric, kInfinity, answer.stats);
-    if (distance) top.offer({stored->id, *distance, sketch_distance, stored->metadata});
+    if (distance) top.offer({stored->id, *distance, sketch, stored->metadata});
   }
   answer.hits = top.take();
   answer.certified = true;

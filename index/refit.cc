@@ -68,7 +68,8 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
   Result<LandmarkSet> fitted = fit_next_generation(state, current->sketcher.landmarks(), options);
   if (!fitted) return fitted.status();
   const CollectionSettings settings_now = settings();
-  auto next = std::make_shared<Generation>(*fitted, settings_now.index_kind, settings_now.approximate);
+  auto next = std::make_shared<Generation>(*fitted, settings_now.index_kind, settings_now.approximate,
+                                           settings_now.default_metric);
   const std::uint64_t number = next->number();
 
   // Abandoning before the switch: forget the next generation and delete what was written of
@@ -112,11 +113,11 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
       const std::string id = key.substr(shape_key("").size());
       Result<StoredShape> stored = decode_record(id, it->value().ToStringView(), state.settings.limits);
       if (!stored) return stored.status();
-      next->sketcher.sketch(apply_frame(stored->shape, state.settings.frame), sketch);
+      const Shape framed = apply_frame(stored->shape, state.settings.frame);
+      next->sketcher.sketch(framed, sketch);
       batch.Put(sketch_key(number, id), encode_sketch(stored->label, sketch));
       labels.push_back(stored->label);
-      const std::vector<float> raw = next->sketcher.unweighted(sketch);
-      vectors.insert(vectors.end(), raw.begin(), raw.end());
+      next->append_index_vector(sketch, framed, Frame::absolute, vectors);
       last_key = key;
     }
     if (Status s = from_rocksdb(it->status(), "scanning records for the refit"); !s.is_ok()) return s;

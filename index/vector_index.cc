@@ -22,16 +22,17 @@ inline Float8 load8(const float* p) {
   return value;
 }
 
-// L∞ distance from `query` to each of `count` rows. Stored values are finite, so the
-// comparison-based maximum equals the true one.
+// L∞ distance over the first `dimension` coordinates from `query` to each of `count` rows
+// that lie `stride` floats apart. Stored values are finite, so the comparison-based maximum
+// equals the true one.
 WAYMARK_VECTOR_CLONES
-void linf_distances(const float* __restrict rows, std::size_t count, std::size_t dimension,
+void linf_distances(const float* __restrict rows, std::size_t count, std::size_t stride, std::size_t dimension,
                     const float* __restrict query, float* __restrict out) {
   const std::size_t whole = dimension - dimension % kLanes;
   const Int8 magnitude = {0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff,
                           0x7fffffff, 0x7fffffff, 0x7fffffff, 0x7fffffff};
   for (std::size_t row = 0; row < count; ++row) {
-    const float* vector = rows + row * dimension;
+    const float* vector = rows + row * stride;
     Float8 largest8 = {};
     for (std::size_t base = 0; base < whole; base += kLanes) {
       const Float8 difference = reinterpret_cast<Float8>(reinterpret_cast<Int8>(load8(vector + base) - load8(query + base)) & magnitude);
@@ -109,14 +110,17 @@ Result<std::vector<float>> VectorIndex::vector_of(std::int64_t label) const {
   return std::vector<float>(row, row + dimension_);
 }
 
-Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query) const {
-  if (query.size() != dimension_) return Status(StatusCode::internal, "query dimension mismatch");
+Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::size_t compared) const {
+  if (query.size() != dimension_ || compared > dimension_) {
+    return Status(StatusCode::internal, "query dimension mismatch");
+  }
+  if (compared == 0) compared = dimension_;
   Scan scan;
   std::vector<float> distances;
   {
     std::shared_lock lock(mutex_);
     distances.resize(labels_.size());
-    linf_distances(vectors_.data(), labels_.size(), dimension_, query.data(), distances.data());
+    linf_distances(vectors_.data(), labels_.size(), dimension_, compared, query.data(), distances.data());
     scan.all_.resize(labels_.size());
     for (std::size_t i = 0; i < labels_.size(); ++i) scan.all_[i] = {labels_[i], distances[i]};
   }

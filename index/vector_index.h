@@ -69,8 +69,10 @@ class VectorIndex {
     std::vector<Neighbour> all_;
     std::size_t handed_out_ = 0;
   };
-  // O(n · dimension) for the distances. query.size() must equal dimension() (else internal).
-  Result<Scan> scan(std::span<const float> query) const;
+  // Distances over the first `compared` coordinates only (≤ dimension(); 0 means all), so that
+  // one stored vector can carry values that bound some metrics and not others.
+  // O(n · compared) for the distances. query.size() must equal dimension() (else internal).
+  Result<Scan> scan(std::span<const float> query, std::size_t compared = 0) const;
 
  private:
   std::size_t dimension_;

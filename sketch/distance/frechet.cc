@@ -307,6 +307,12 @@ Result<Path> curve_of(const Shape& shape) {
   return curve;
 }
 
+std::optional<CurveEnds> curve_ends(const Shape& shape) {
+  if (shape.kind == ShapeKind::points || shape.parts.size() != 1 || shape.parts.front().empty()) return std::nullopt;
+  const Path& part = shape.parts.front();
+  return CurveEnds{part.front(), shape.kind == ShapeKind::polygon ? part.front() : part.back()};
+}
+
 bool frechet_at_most(const Path& p, const Path& q, double epsilon) { return decide(p, q, epsilon, nullptr, nullptr); }
 
 // What a search has proven so far: d_F lies in (lo, hi.value + slack]; the cells reachable

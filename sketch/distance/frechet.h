@@ -44,6 +44,14 @@ namespace waymark {
 // The curve of a shape as described above, or not_applicable.
 Result<Path> curve_of(const Shape& shape);
 
+struct CurveEnds {
+  Point first, last;
+};
+// The first and last vertex of curve_of(shape) (for a ring, its first vertex twice), found in
+// O(1) without building the curve; nullopt for point sets and shapes of several parts. (A curve
+// with fewer than two distinct vertices has ends too, though curve_of refuses it.)
+std::optional<CurveEnds> curve_ends(const Shape& shape);
+
 Result<bool> frechet_at_most(const Shape& p, const Shape& q, double epsilon);
 Result<DistanceResult> frechet(const Shape& p, const Shape& q);
 Result<DistanceResult> discrete_frechet(const Shape& p, const Shape& q);

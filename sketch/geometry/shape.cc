@@ -123,16 +123,20 @@ Result<Frame> parse_frame(const std::string& name) {
   return invalid_argument("unknown frame '" + name + "' (expected absolute, centered or unit)");
 }
 
+FramePlacement frame_placement(const Shape& shape, Frame frame) {
+  if (frame == Frame::absolute || shape.vertex_count() == 0) return {};
+  const Box box = bounding_box(shape);
+  const double longer_side = std::max(box.width(), box.height());
+  return {(box.min_x + box.max_x) / 2, (box.min_y + box.max_y) / 2,
+          (frame == Frame::unit && longer_side > 0) ? 1 / longer_side : 1};
+}
+
 Shape apply_frame(const Shape& shape, Frame frame) {
   if (frame == Frame::absolute || shape.vertex_count() == 0) return shape;
-  const Box box = bounding_box(shape);
-  const double center_x = (box.min_x + box.max_x) / 2;
-  const double center_y = (box.min_y + box.max_y) / 2;
-  const double longer_side = std::max(box.width(), box.height());
-  const double scale = (frame == Frame::unit && longer_side > 0) ? 1 / longer_side : 1;
+  const FramePlacement placement = frame_placement(shape, frame);
   Shape placed = shape;
   for (Path& part : placed.parts) {
-    for (Point& p : part) p = {(p.x - center_x) * scale, (p.y - center_y) * scale};
+    for (Point& p : part) p = placement.place(p);
   }
   return placed;
 }

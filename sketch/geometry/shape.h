@@ -73,8 +73,16 @@ enum class Frame {
 const char* frame_name(Frame frame);
 Result<Frame> parse_frame(const std::string& name);
 
-// Returns the shape placed in `frame`. A shape whose bounding box has no extent (one point)
-// is only centered by Frame::unit, since it has no size to scale.
+// Where `frame` puts a shape's points: p ↦ (p − centre) · scale (identity for absolute). A
+// shape whose bounding box has no extent (one point) is only centered by Frame::unit, since it
+// has no size to scale. O(vertices), no allocation.
+struct FramePlacement {
+  double center_x = 0, center_y = 0, scale = 1;
+  Point place(Point p) const { return {(p.x - center_x) * scale, (p.y - center_y) * scale}; }
+};
+FramePlacement frame_placement(const Shape& shape, Frame frame);
+
+// Returns the shape placed in `frame` (each vertex through frame_placement's place).
 Shape apply_frame(const Shape& shape, Frame frame);
 
 }  // namespace waymark

@@ -70,7 +70,7 @@ int main(int argc, char** argv) {
       std::printf("%-34s %10.2f %16.3f\n", "FAISS IndexHNSWFlat (scalar L2)", build, search);
     }
     {
-      ApproximateIndex graph(IndexKind::graph, std::vector<double>(dimension, 1.0), settings);
+      ApproximateIndex graph(IndexKind::graph, std::vector<double>(dimension, 1.0), dimension, settings);
       const auto start = Clock::now();
       if (Status s = graph.build(contents); !s.is_ok()) {
         std::fprintf(stderr, "%s\n", s.to_string().c_str());

@@ -12,7 +12,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   // The index to restore into takes the kind the file names (byte 8, after the magic), so that
   // both kinds' payloads are reached; other values still reach the kind check.
   const waymark::IndexKind kind = size > 8 && data[8] == 2 ? waymark::IndexKind::partitioned : waymark::IndexKind::graph;
-  waymark::ApproximateIndex index(kind, std::vector<double>(4, 1.0));
+  waymark::ApproximateIndex index(kind, std::vector<double>(4, 1.0), 4);
   waymark::VectorIndex::Contents stored;
   stored.labels = {1, 2, 3};
   stored.vectors = {0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2};
