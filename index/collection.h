@@ -51,7 +51,10 @@ struct CollectionSettings {
   ShapeLimits limits;
   std::size_t max_id_bytes = 256;
   std::size_t max_metadata_bytes = 16 * 1024;
-  Metric default_metric = Metric::hausdorff;  // for callers that name none (the server)
+  // For callers that name none (the server). A frechet or discrete-frechet default also makes
+  // a graph or partitioned index compare the curves' ends, which Fréchet candidates need and
+  // Hausdorff ones do not (index/collection_state.h, Generation).
+  Metric default_metric = Metric::hausdorff;
   // exhaustive: every query walks the L∞ index. graph / partitioned: fast-mode queries take
   // their candidates from an approximate index (index/approximate_index.h) once the collection
   // has ApproximateIndexSettings::minimum_size shapes; exact mode and range queries still walk
