@@ -416,8 +416,11 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
     return damaged(error.what());
   }
   if (reader.remaining != 0) return damaged("index length");
-  if (static_cast<std::uint64_t>(index->ntotal) != count || static_cast<std::size_t>(index->d) != root_weights_.size()) {
-    return damaged("index size or dimension does not match its labels");
+  if (static_cast<std::uint64_t>(index->ntotal) != count) return damaged("index size does not match its labels");
+  if (static_cast<std::size_t>(index->d) != root_weights_.size()) {
+    return Status(StatusCode::failed_precondition,
+                  "snapshot compares " + std::to_string(index->d) + " values per vector, this collection " +
+                      std::to_string(root_weights_.size()) + " (written by an older build, or for another default metric)");
   }
   // Catch up with the store: what it holds beyond the snapshot is fresh; what the snapshot
   // holds beyond the store is a tombstone.

@@ -2,7 +2,9 @@
 // exact mode unchanged, fresh writes found before any rebuild, deleted shapes never returned,
 // rebuilds when due, the background builder, and the kind surviving a restart.
 #include <catch2/catch.hpp>
+#include <rocksdb/db.h>
 #include <xxhash.h>
+#include <nlohmann/json.hpp>
 
 #include <chrono>
 #include <cstring>
@@ -253,6 +255,31 @@ TEST_CASE("ApproximateIndexSnapshotIsLoadedCaughtUpAndRebuiltWhenDamaged", "[con
     REQUIRE(answer.is_ok());
     CHECK(answer->hits[0].id == records[700].id);  // the exhaustive walk serves meanwhile
     std::ofstream(snapshot, std::ios::binary | std::ios::trunc) << bytes;  // undamaged for the next round
+  }
+  {
+    // The snapshot's graph compares landmark distances only, as a Hausdorff collection's does.
+    // Declared a Fréchet collection (the manifest rewritten here), its index compares the
+    // curves' ends too: the snapshot no longer fits and is rebuilt, with nothing lost.
+    rocksdb::DB* raw = nullptr;
+    REQUIRE(rocksdb::DB::Open(rocksdb::Options(), directory.path.string(), &raw).ok());
+    std::unique_ptr<rocksdb::DB> database(raw);
+    std::string text;
+    REQUIRE(database->Get(rocksdb::ReadOptions(), "manifest", &text).ok());
+    nlohmann::json manifest = nlohmann::json::parse(text);
+    REQUIRE(manifest.at("default_metric") == "hausdorff");
+    manifest["default_metric"] = "frechet";
+    REQUIRE(database->Put(rocksdb::WriteOptions(), "manifest", manifest.dump()).ok());
+  }
+  {
+    Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path, manual);
+    REQUIRE(reopened.is_ok());
+    const ApproximateIndexStatus status = (*reopened)->statistics().approximate;
+    CHECK(status.snapshot == "rebuilding: snapshot compares 32 values per vector, this collection 36 (written by an "
+                             "older build, or for another default metric)");
+    CHECK_FALSE(status.built);
+    Result<QueryAnswer> answer = (*reopened)->nearest(records[700].shape, QueryOptions{});
+    REQUIRE(answer.is_ok());
+    CHECK(answer->hits[0].id == records[700].id);
   }
   {
     // A refit makes the snapshot stale: another landmark generation.
