@@ -113,20 +113,54 @@ double piece_upper_bound(const PreparedShape& b, const Piece& piece, Point p0, P
   return bound;
 }
 
-void search_boundary(const PreparedShape& a, const PreparedShape& b, DistanceToShape& to_b, SearchState& state) {
-  std::vector<Piece> stack;
+// The values at both ends of each segment of A (upper bounds where they did not beat the
+// running maximum), and a segment of B near each end.
+struct SegmentEnds {
+  double f0, f1;
+  std::size_t near0, near1;
+};
+
+// First phase over A's boundary: every vertex, before any segment's interior. The running
+// maximum then starts the interiors' branch and bound at the largest vertex value, so fewer
+// pieces survive it, and a decision that must refuse usually finds its point here, before
+// any interior is searched. A vertex shared by consecutive segments is evaluated once.
+void search_vertices(const PreparedShape& a, DistanceToShape& to_b, SearchState& state, std::vector<SegmentEnds>& ends) {
+  ends.resize(a.segment_count());
+  Point closest;
   for (std::size_t i = 0; i < a.segment_count() && !done(state); ++i) {
-    Point closest;
+    SegmentEnds& e = ends[i];
     const Point p0 = a.segment_start(i);
-    const double f0 = to_b.upper_bound(p0, state.best, &closest);
-    const std::size_t near0 = to_b.last_segment();
-    offer(state, f0, p0, closest);
+    if (a.continues_previous[i]) {
+      e.f0 = ends[i - 1].f1;
+      e.near0 = ends[i - 1].near1;
+    } else {
+      e.f0 = to_b.upper_bound(p0, state.best, &closest);
+      e.near0 = to_b.last_segment();
+      offer(state, e.f0, p0, closest);
+    }
+    if (a.segment_length(i) == 0) {
+      e.f1 = e.f0;
+      e.near1 = e.near0;
+      continue;
+    }
+    // The vertex itself where the next segment starts there (segment_end is rounded).
+    const bool shared = i + 1 < a.segment_count() && a.continues_previous[i + 1];
+    const Point p1 = shared ? a.segment_start(i + 1) : a.segment_end(i);
+    e.f1 = to_b.upper_bound(p1, state.best, &closest);
+    e.near1 = to_b.last_segment();
+    offer(state, e.f1, p1, closest);
+  }
+}
+
+// Second phase: each segment's interior, by branch and bound from its ends' values.
+void search_segment_interiors(const PreparedShape& a, const PreparedShape& b, DistanceToShape& to_b,
+                              SearchState& state, const std::vector<SegmentEnds>& ends) {
+  std::vector<Piece> stack;
+  Point closest;
+  for (std::size_t i = 0; i < a.segment_count() && !done(state); ++i) {
     const double length = a.segment_length(i);
     if (length == 0) continue;
-    const Point p1 = a.segment_end(i);
-    const double f1 = to_b.upper_bound(p1, state.best, &closest);
-    offer(state, f1, p1, closest);
-    stack.push_back({0, 1, f0, f1, near0, to_b.last_segment()});
+    stack.push_back({0, 1, ends[i].f0, ends[i].f1, ends[i].near0, ends[i].near1});
     while (!stack.empty() && !done(state)) {
       const Piece piece = stack.back();
       stack.pop_back();
@@ -201,19 +235,41 @@ double tolerance_for(const PreparedShape& a, const PreparedShape& b, const Hausd
   return std::max(options.relative_tolerance * scale, 16 * DBL_EPSILON * magnitude);
 }
 
-// Runs the directed search from A to B with the running maximum starting at `floor`.
+// The directed search from A to B, with the running maximum starting at `floor`, in its
+// phases: A's vertices, then its segments' interiors and (region semantics) its interior.
+class DirectedSearch {
+ public:
+  DirectedSearch(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options, double floor,
+                 bool stop_when_found)
+      : a_(a), b_(b), options_(options), to_b_(b, options.region_semantics) {
+    state.best = floor;
+    state.tolerance = tolerance_for(a, b, options);
+    state.stop_when_found = stop_when_found;
+  }
+  void vertices() { search_vertices(a_, to_b_, state, ends_); }
+  void interiors() {
+    if (done(state)) return;
+    search_segment_interiors(a_, b_, to_b_, state, ends_);
+    if (options_.region_semantics && a_.kind == ShapeKind::polygon && !done(state)) {
+      search_interior(a_, b_, options_, state);
+    }
+  }
+  SearchState state;
+
+ private:
+  const PreparedShape& a_;
+  const PreparedShape& b_;
+  const HausdorffOptions& options_;
+  DistanceToShape to_b_;
+  std::vector<SegmentEnds> ends_;
+};
+
 SearchState directed_search(const PreparedShape& a, const PreparedShape& b, const HausdorffOptions& options,
                             double floor, bool stop_when_found) {
-  SearchState state;
-  state.best = floor;
-  state.tolerance = tolerance_for(a, b, options);
-  state.stop_when_found = stop_when_found;
-  DistanceToShape to_b(b, options.region_semantics);
-  search_boundary(a, b, to_b, state);
-  if (options.region_semantics && a.kind == ShapeKind::polygon && !done(state)) {
-    search_interior(a, b, options, state);
-  }
-  return state;
+  DirectedSearch search(a, b, options, floor, stop_when_found);
+  search.vertices();
+  search.interiors();
+  return search.state;
 }
 
 DistanceResult to_result(const SearchState& state) {
@@ -248,11 +304,21 @@ DistanceResult hausdorff(const PreparedShape& a, const PreparedShape& b, const H
   return result;
 }
 
+// Both directions' vertices before either's interiors: where the answer is no, a vertex
+// usually shows it (HausdorffDecision200/90 in tests/benchmarks/sketch_benchmarks.cc).
 bool hausdorff_at_most(const PreparedShape& a, const PreparedShape& b, double epsilon,
                        const HausdorffOptions& options) {
   if (bounding_box_lower_bound(a.box, b.box) > epsilon) return false;
-  if (directed_search(a, b, options, epsilon, true).found) return false;
-  return !directed_search(b, a, options, epsilon, true).found;
+  DirectedSearch forward(a, b, options, epsilon, true), backward(b, a, options, epsilon, true);
+  for (DirectedSearch* search : {&forward, &backward}) {
+    search->vertices();
+    if (search->state.found) return false;
+  }
+  for (DirectedSearch* search : {&forward, &backward}) {
+    search->interiors();
+    if (search->state.found) return false;
+  }
+  return true;
 }
 
 DistanceResult hausdorff(const Shape& a, const Shape& b, const HausdorffOptions& options) {

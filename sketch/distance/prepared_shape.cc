@@ -7,6 +7,7 @@ namespace waymark {
 
 PreparedShape::PreparedShape(const Shape& shape)
     : kind(shape.kind), box(bounding_box(shape)), diameter_bound(box.diagonal()) {
+  bool first_of_part = true;  // the next segment added starts a stroke or ring
   auto add = [&](Point a, Point b) {
     const double dx = b.x - a.x, dy = b.y - a.y;
     const double length_squared = dx * dx + dy * dy;
@@ -15,8 +16,12 @@ PreparedShape::PreparedShape(const Shape& shape)
     delta_x.push_back(dx);
     delta_y.push_back(dy);
     inverse_length_squared.push_back(length_squared > 0 ? 1 / length_squared : 0);
+    length.push_back(std::hypot(dx, dy));  // no overflow for any finite coordinates
+    continues_previous.push_back(first_of_part ? 0 : 1);
+    first_of_part = kind == ShapeKind::points;
   };
   for (const Path& part : shape.parts) {
+    first_of_part = true;
     switch (shape.kind) {
       case ShapeKind::points:
         for (const Point& p : part) add(p, p);
@@ -35,8 +40,6 @@ PreparedShape::PreparedShape(const Shape& shape)
     }
   }
 }
-
-double PreparedShape::segment_length(std::size_t i) const { return std::hypot(delta_x[i], delta_y[i]); }
 
 bool PreparedShape::contains(Point p) const {
   if (kind != ShapeKind::polygon) return false;

@@ -9,6 +9,7 @@
 #pragma once
 
 #include <cstddef>
+#include <cstdint>
 #include <vector>
 
 #include "sketch/geometry/shape.h"
@@ -23,13 +24,17 @@ struct PreparedShape {
   double diameter_bound;  // bounding-box diagonal: at least the shape's diameter
 
   // Segment i runs from (start_x[i], start_y[i]) to (start_x[i] + delta_x[i], ...).
-  // inverse_length_squared[i] is 1/|delta|², or 0 for a zero-length segment.
-  std::vector<double> start_x, start_y, delta_x, delta_y, inverse_length_squared;
+  // inverse_length_squared[i] is 1/|delta|², or 0 for a zero-length segment; length[i] is |delta|.
+  std::vector<double> start_x, start_y, delta_x, delta_y, inverse_length_squared, length;
+  // 1 where segment i starts at the vertex where segment i − 1 ends (same stroke or ring):
+  // segment_start(i) is then that vertex exactly, while segment_end(i − 1) is it only up to
+  // the rounding of start + delta.
+  std::vector<std::uint8_t> continues_previous;
 
   std::size_t segment_count() const { return start_x.size(); }
   Point segment_start(std::size_t i) const { return {start_x[i], start_y[i]}; }
   Point segment_end(std::size_t i) const { return {start_x[i] + delta_x[i], start_y[i] + delta_y[i]}; }
-  double segment_length(std::size_t i) const;
+  double segment_length(std::size_t i) const { return length[i]; }
   Point point_on_segment(std::size_t i, double fraction) const {
     return {start_x[i] + fraction * delta_x[i], start_y[i] + fraction * delta_y[i]};
   }

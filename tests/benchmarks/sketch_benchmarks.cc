@@ -115,6 +115,25 @@ void Hausdorff200(benchmark::State& state) {
 }
 BENCHMARK(Hausdorff200);
 
+// The decision at ε = factor × d_H: a query planner's refusals (90) and acceptances (110).
+void HausdorffDecision200(benchmark::State& state) {
+  const CurvePairs& pairs = curve_pairs(200);
+  std::vector<PreparedShape> a, b;
+  std::vector<double> value;
+  for (int k = 0; k < kPairs; ++k) {
+    a.emplace_back(pairs.first[k]);
+    b.emplace_back(pairs.second[k]);
+    value.push_back(hausdorff(a.back(), b.back()).value);
+  }
+  const double factor = state.range(0) / 100.0;
+  std::size_t i = 0;
+  for (auto _ : state) {
+    const std::size_t k = i++ % kPairs;
+    benchmark::DoNotOptimize(hausdorff_at_most(a[k], b[k], factor * value[k]));
+  }
+}
+BENCHMARK(HausdorffDecision200)->Arg(90)->Arg(110);
+
 // GEOS's Hausdorff compares vertices with segments: a lower bound, not the continuous value.
 void GeosDiscreteHausdorff200(benchmark::State& state) {
   const CurvePairs& pairs = curve_pairs(200);
