@@ -373,17 +373,20 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     // the rest cannot enter the answer and are never read from the store.
     Result<std::vector<Neighbour>> candidates = approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0));
     if (!candidates) return candidates.status();
-    std::vector<Neighbour> by_bound;
-    by_bound.reserve(candidates->size());
-    const std::size_t compared = query.generation->compared_dimensions(options.metric);
+    std::vector<std::int64_t> labels;
+    labels.reserve(candidates->size());
     for (const Neighbour& n : *candidates) {
-      if (n.label == excluded_label) continue;
-      Result<std::vector<float>> raw = query.generation->index.vector_of(n.label);
-      if (!raw) continue;  // a tombstone: deleted or replaced since the build
-      const double bound = Sketcher::unweighted_linf_lower_bound(std::span(query.raw).first(compared),
-                                                                 std::span(*raw).first(compared));
-      by_bound.push_back({n.label, static_cast<float>(bound)});
+      if (n.label != excluded_label) labels.push_back(n.label);
     }
+    std::vector<Neighbour> by_bound;
+    by_bound.reserve(labels.size());
+    const std::size_t compared = query.generation->compared_dimensions(options.metric);
+    // Labels without a vector are tombstones (deleted or replaced since the build): skipped.
+    query.generation->index.visit_vectors(labels, [&](std::size_t i, std::span<const float> raw) {
+      const double bound =
+          Sketcher::unweighted_linf_lower_bound(std::span(query.raw).first(compared), raw.first(compared));
+      by_bound.push_back({labels[i], static_cast<float>(bound)});
+    });
     std::sort(by_bound.begin(), by_bound.end(),
               [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
     for (const Neighbour& n : by_bound) {

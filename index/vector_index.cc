@@ -110,6 +110,15 @@ Result<std::vector<float>> VectorIndex::vector_of(std::int64_t label) const {
   return std::vector<float>(row, row + dimension_);
 }
 
+void VectorIndex::visit_vectors(std::span<const std::int64_t> labels,
+                                const std::function<void(std::size_t, std::span<const float>)>& visit) const {
+  std::shared_lock lock(mutex_);
+  for (std::size_t i = 0; i < labels.size(); ++i) {
+    auto found = row_of_label_.find(labels[i]);
+    if (found != row_of_label_.end()) visit(i, {vectors_.data() + found->second * dimension_, dimension_});
+  }
+}
+
 Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::size_t compared) const {
   if (query.size() != dimension_ || compared > dimension_) {
     return Status(StatusCode::internal, "query dimension mismatch");

@@ -16,7 +16,9 @@ PreparedShape::PreparedShape(const Shape& shape)
     delta_x.push_back(dx);
     delta_y.push_back(dy);
     inverse_length_squared.push_back(length_squared > 0 ? 1 / length_squared : 0);
-    length.push_back(std::hypot(dx, dy));  // no overflow for any finite coordinates
+    // hypot (slow) only where the square could overflow or lose everything to underflow.
+    length.push_back(length_squared < 1e300 && length_squared > 1e-300 ? std::sqrt(length_squared)
+                                                                     : std::hypot(dx, dy));
     continues_previous.push_back(first_of_part ? 0 : 1);
     first_of_part = kind == ShapeKind::points;
   };
