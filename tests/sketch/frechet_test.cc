@@ -65,6 +65,25 @@ TEST_CASE("ClosedRingsKeepTheirStartPoint") {
   CHECK(frechet_value(a, a) == 0);
 }
 
+TEST_CASE("CurveEndsAreTheCurvesFirstAndLastVertex") {
+  // The index keeps curve_ends of every shape; the planner's endpoint bound uses curve_of's
+  // front and back. They must agree, repeated vertices and closing rings included.
+  for (const char* text : {"LINESTRING (0 0, 0 0, 3 4, 7 1, 7 1)", "POLYGON ((2 2, 10 0, 10 10, 2 2))",
+                           "MULTILINESTRING ((5 5, 6 6, 7 5))"}) {
+    INFO(text);
+    const Shape shape = wkt(text);
+    const std::optional<CurveEnds> ends = curve_ends(shape);
+    Result<Path> curve = curve_of(shape);
+    REQUIRE(ends.has_value());
+    REQUIRE(curve.is_ok());
+    CHECK(ends->first == curve->front());
+    CHECK(ends->last == curve->back());
+  }
+  CHECK(curve_ends(wkt("POLYGON ((2 2, 10 0, 10 10, 2 2))"))->last == Point{2, 2});  // back to the start
+  CHECK_FALSE(curve_ends(wkt("MULTIPOINT ((0 0), (1 1))")).has_value());
+  CHECK_FALSE(curve_ends(wkt("MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))")).has_value());
+}
+
 TEST_CASE("FrechetOfSeveralStrokesIsAnError") {
   Result<DistanceResult> r = frechet(wkt("MULTILINESTRING ((0 0, 1 1), (2 2, 3 3))"), wkt("LINESTRING (0 0, 1 1)"));
   REQUIRE_FALSE(r.is_ok());
