@@ -308,8 +308,9 @@ bool vertices_match_in_order(const Path& p, const Path& q, double epsilon_square
 // Whether the O(n + m) test above, both ways, shows d_F(P, Q) > ε. Worth running before a
 // decision that is likely to refuse: most of a query planner's do (about 120 of 140 per
 // Fréchet query at 200k shapes). It refuses a decision at 90 % of the value in a quarter of
-// the decision's time, and adds a fifth to a decision that accepts (sketch_benchmarks,
-// FrechetDecision200/90 and /110), so decisions expected to accept skip it.
+// the decision's time, and adds about 15 % to a decision that accepts (sketch_benchmarks,
+// FrechetDecision200/90 and /110: 8.1 → 1.9 µs, 64 → 74 µs), so decisions expected to
+// accept (the value search's at its upper bound) skip it.
 bool refused_cheaply(const Path& p, const Path& q, double epsilon) {
   return epsilon >= 0 && (!vertices_match_in_order(p, q, epsilon * epsilon) ||
                           !vertices_match_in_order(q, p, epsilon * epsilon));

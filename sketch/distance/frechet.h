@@ -9,7 +9,9 @@
 // IJCGA 5, 1995):
 //   frechet_at_most(P, Q, ε) decides d_F ≤ ε on the free-space diagram, cell by cell, keeping
 //   one row of reachable intervals: O(n·m) time, O(n + m) memory, with an early "no" once no
-//   cell of a row is reachable.
+//   cell of a row is reachable. Before the diagram, an O(n + m) walk tries to refuse: each
+//   vertex of one curve, in order, must find a point of the other within ε at or after the
+//   point its predecessor found (greedily the earliest), both ways; most refusals end there.
 //   frechet(P, Q) finds the value among the critical values — the endpoint distances, the
 //   vertex-to-segment distances, and the distances at which a segment's point is equidistant
 //   from two vertices of the other curve — by binary search with the decision procedure over

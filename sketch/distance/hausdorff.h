@@ -6,8 +6,11 @@
 // points (point set). LINESTRING (0 0, 10 0) against MULTIPOINT ((0 0), (10 0)) is 5: the
 // maximum may lie inside a segment.
 //
-// Method: along a segment of A, f(t) = d(A(t), B) is 1-Lipschitz, so over a piece of length L
-// with end values f0, f1 the maximum is at most (f0 + f1 + L) / 2; and f ≤ d(·, s) for any one
+// Method: first every vertex of A, so that the running maximum starts from the largest vertex
+// value (and a decision that must refuse usually finds its point there: hausdorff_at_most
+// checks both directions' vertices before either's interiors). Then, along a segment of A,
+// f(t) = d(A(t), B) is 1-Lipschitz, so over a piece of length L with end values f0, f1 the
+// maximum is at most (f0 + f1 + L) / 2; and f ≤ d(·, s) for any one
 // segment s of B, which is convex along the piece, so the maximum is also at most the larger
 // of d(p0, s), d(p1, s) (this keeps shapes lying on each other, e.g. duplicates, cheap).
 // Pieces whose bound cannot beat the best value found are discarded, others are halved
