@@ -36,6 +36,14 @@ struct PreparedQuery {
   std::span<const float> landmark_distances(std::span<const float> index_vector) const {
     return index_vector.first(generation->landmark_count());
   }
+  // A lower bound on the exact distance (under the metric the values were compared for) of a
+  // shape whose index vector lies `difference` away in L∞, as the vector index computes it in
+  // float: less the float rounding of the stored values (relative to the values, |b| ≤ |a| +
+  // difference) and of the difference itself.
+  double lower_bound_from(double difference) const {
+    return std::max(0.0, difference * (1 - 1e-6) -
+                             Sketcher::kUnweightedRelativeError * (2 * largest_raw + difference));
+  }
   std::shared_ptr<const Generation> generation;
   Shape shape;
   PreparedShape prepared;
@@ -319,27 +327,21 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
   Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw, query.generation->compared_dimensions(metric));
   if (!scan) return scan.status();
   // The scan is in that order, so every shape not drawn yet has an L∞ difference ≥ the next
-  // one's (or the last one drawn), and that bounds its exact distance from below,
-  // less the float rounding of the stored values (relative to the values, |b| ≤ |a| +
-  // difference) and of the difference itself.
-  auto bound_from = [&](double difference) {
-    return std::max(0.0, difference * (1 - 1e-6) -
-                             Sketcher::kUnweightedRelativeError * (2 * query.largest_raw + difference));
-  };
+  // one's (or the last one drawn), and that bounds its exact distance from below.
   std::size_t fetch = std::min(budget, first_fetch), drawn = 0;
   while (true) {
     const std::span<const Neighbour> round = scan->next(fetch - drawn);
     drawn += round.size();
     for (const Neighbour& n : round) {
       // Once this shape is ruled out, so is every later one: none of them is read.
-      if (enough(bound_from(n.distance))) return true;
+      if (enough(query.lower_bound_from(n.distance))) return true;
       if (n.label == excluded_label) continue;
       Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, filter, stats);
       if (!candidate) return candidate.status();
       if (*candidate && !visit(**candidate)) return false;
     }
     if (scan->exhausted()) return true;  // every stored shape was drawn
-    if (!round.empty() && enough(bound_from(round.back().distance))) return true;
+    if (!round.empty() && enough(query.lower_bound_from(round.back().distance))) return true;
     if (drawn >= budget) return false;
     fetch = std::min(budget, fetch * 4);
   }
@@ -378,20 +380,14 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     for (const Neighbour& n : *candidates) {
       if (n.label != excluded_label) labels.push_back(n.label);
     }
-    std::vector<Neighbour> by_bound;
-    by_bound.reserve(labels.size());
-    const std::size_t compared = query.generation->compared_dimensions(options.metric);
-    // Labels without a vector are tombstones (deleted or replaced since the build): skipped.
-    query.generation->index.visit_vectors(labels, [&](std::size_t i, std::span<const float> raw) {
-      const double bound =
-          Sketcher::unweighted_linf_lower_bound(std::span(query.raw).first(compared), raw.first(compared));
-      by_bound.push_back({labels[i], static_cast<float>(bound)});
-    });
-    std::sort(by_bound.begin(), by_bound.end(),
+    // Labels without a vector are tombstones (deleted or replaced since the build): left out.
+    Result<std::vector<Neighbour>> by_bound = query.generation->index.distances_to(
+        labels, query.raw, query.generation->compared_dimensions(options.metric));
+    if (!by_bound) return by_bound.status();
+    std::sort(by_bound->begin(), by_bound->end(),
               [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
-    for (const Neighbour& n : by_bound) {
-      // The float bound was rounded from a double: compare with a hair of slack.
-      if (options.metric != Metric::sketch && n.distance * (1 - 1e-6) > selection.threshold()) {
+    for (const Neighbour& n : *by_bound) {
+      if (options.metric != Metric::sketch && query.lower_bound_from(n.distance) > selection.threshold()) {
         answer.stats.pruned_by_sketch_bound += 1;
         continue;
       }

@@ -110,13 +110,23 @@ Result<std::vector<float>> VectorIndex::vector_of(std::int64_t label) const {
   return std::vector<float>(row, row + dimension_);
 }
 
-void VectorIndex::visit_vectors(std::span<const std::int64_t> labels,
-                                const std::function<void(std::size_t, std::span<const float>)>& visit) const {
-  std::shared_lock lock(mutex_);
-  for (std::size_t i = 0; i < labels.size(); ++i) {
-    auto found = row_of_label_.find(labels[i]);
-    if (found != row_of_label_.end()) visit(i, {vectors_.data() + found->second * dimension_, dimension_});
+Result<std::vector<Neighbour>> VectorIndex::distances_to(std::span<const std::int64_t> labels,
+                                                         std::span<const float> query, std::size_t compared) const {
+  if (query.size() != dimension_ || compared > dimension_) {
+    return Status(StatusCode::internal, "query dimension mismatch");
   }
+  if (compared == 0) compared = dimension_;
+  std::vector<Neighbour> out;
+  out.reserve(labels.size());
+  std::shared_lock lock(mutex_);
+  for (const std::int64_t label : labels) {
+    auto found = row_of_label_.find(label);
+    if (found == row_of_label_.end()) continue;
+    float distance = 0;
+    linf_distances(vectors_.data() + found->second * dimension_, 1, dimension_, compared, query.data(), &distance);
+    out.push_back({label, distance});
+  }
+  return out;
 }
 
 Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::size_t compared) const {

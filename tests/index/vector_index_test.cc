@@ -1,5 +1,5 @@
 // The exhaustive vector index: scans rank by L∞ over the leading values a metric compares
-// (index/vector_index.h), and visit_vectors hands out the stored vectors of the labels asked.
+// (index/vector_index.h), and distances_to measures the same way to the labels asked.
 #include <catch2/catch.hpp>
 
 #include "index/vector_index.h"
@@ -28,16 +28,19 @@ TEST_CASE("ScansCompareOnlyTheLeadingValuesAsked") {
   CHECK(index.scan(query, 4).status().code() == StatusCode::internal);  // more than stored
 }
 
-TEST_CASE("VisitVectorsSkipsLabelsWithoutAVector") {
-  VectorIndex index(2);
-  REQUIRE(index.add(std::vector<std::int64_t>{7, 9}, std::vector<float>{1, 2, 3, 4}).is_ok());
+TEST_CASE("DistancesToLabelsLeaveOutLabelsWithoutAVector") {
+  VectorIndex index(3);
+  REQUIRE(index.add(std::vector<std::int64_t>{7, 9}, std::vector<float>{1, 2, 3, 4, -6, 100}).is_ok());
   REQUIRE(index.remove(std::vector<std::int64_t>{7}).is_ok());
   const std::vector<std::int64_t> asked{7, 9, 11};
-  std::vector<std::pair<std::size_t, std::vector<float>>> seen;
-  index.visit_vectors(asked, [&](std::size_t i, std::span<const float> vector) {
-    seen.emplace_back(i, std::vector<float>(vector.begin(), vector.end()));
-  });
-  REQUIRE(seen.size() == 1);
-  CHECK(seen[0].first == 1);
-  CHECK(seen[0].second == std::vector<float>{3, 4});
+  const std::vector<float> query{1, 1, 1};
+  Result<std::vector<Neighbour>> leading = index.distances_to(asked, query, 2);
+  REQUIRE(leading.is_ok());
+  REQUIRE(leading->size() == 1);
+  CHECK((*leading)[0].label == 9);
+  CHECK((*leading)[0].distance == 7.0f);  // |−6 − 1|; the third value is not compared
+  Result<std::vector<Neighbour>> all = index.distances_to(asked, query);
+  REQUIRE(all.is_ok());
+  CHECK((*all)[0].distance == 99.0f);
+  CHECK(index.distances_to(asked, std::vector<float>{1, 1}).status().code() == StatusCode::internal);
 }
