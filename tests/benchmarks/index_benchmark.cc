@@ -2,13 +2,14 @@
 // mode and a full exact scan, side by side in one run on the same queries.
 // Usage: index_benchmark [SHAPES=100000] [VERTICES=64] [LANDMARKS=64] [QUERIES=50]
 //                        [INDEX=exhaustive|graph|partitioned] [SCANNED_QUERIES=QUERIES]
-//                        [EXACT_QUERIES=QUERIES]
+//                        [EXACT_QUERIES=QUERIES] [REFIT=0]
 // Prints a table of medians and p99s (milliseconds) with the mean candidates fetched from the
 // store, refused by the decision procedure and given an exact value per query; the exact-mode /
 // full-scan ratio, fast-mode recall@10 against the full scan, and memory and disk per shape.
 // The full exact scan runs on the first SCANNED_QUERIES queries only (it takes seconds per query
 // at 100k shapes), exact mode on the first EXACT_QUERIES (0 leaves only fast mode, e.g. to
-// profile it).
+// profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
+// and prints its time.
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
@@ -50,8 +51,9 @@ int main(int argc, char** argv) {
   const Result<IndexKind> kind = parse_index_kind(argc > 5 ? argv[5] : "exhaustive");
   const std::size_t scanned_queries = argc > 6 ? std::strtoull(argv[6], nullptr, 10) : queries;
   const std::size_t exact_queries = argc > 7 ? std::strtoull(argv[7], nullptr, 10) : queries;
+  const bool refit = argc > 8 && std::string(argv[8]) == "1";
   if (!kind || queries == 0) {
-    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES]\n");
+    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT]\n");
     return 2;
   }
   const std::filesystem::path directory = std::filesystem::temp_directory_path() / "waymark-index-benchmark";
@@ -178,6 +180,17 @@ int main(int argc, char** argv) {
     if (!modes[2].times.empty()) {
       std::printf("%s: fast-mode recall@10 against the full scan: %.3f\n", metric_name(metric), recall.recall());
     }
+  }
+  if (refit) {
+    RefitProgress progress;
+    const auto started = Clock::now();
+    if (Result<std::uint64_t> generation = (*collection)->refit(RefitOptions{}, progress); !generation) {
+      std::fprintf(stderr, "%s\n", generation.status().to_string().c_str());
+      return 1;
+    }
+    const double seconds = milliseconds(Clock::now() - started) / 1000;
+    std::printf("landmark refit (fit, re-sketch every shape, switch): %.2f s, %.0f shapes/s\n", seconds,
+                static_cast<double>(progress.shapes_done) / seconds);
   }
   std::error_code ignored;
   std::filesystem::remove_all(directory, ignored);
