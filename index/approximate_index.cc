@@ -131,16 +131,17 @@ Result<IndexKind> parse_index_kind(const std::string& name) {
 
 ApproximateIndex::ApproximateIndex(IndexKind kind, std::vector<double> root_weights, std::size_t dimension,
                                    ApproximateIndexSettings settings)
-    : kind_(kind), root_weights_(std::move(root_weights)), dimension_(dimension), settings_(settings), fresh_(dimension) {}
+    : kind_(kind), root_weights_(std::move(root_weights)), settings_(settings), fresh_(dimension) {}
 
 ApproximateIndex::~ApproximateIndex() = default;
 
 std::vector<float> ApproximateIndex::weighted(std::span<const float> raw) const {
-  const std::size_t compared = root_weights_.size(), count = raw.size() / dimension_;
+  // fresh_ holds raw vectors, so its dimension is theirs.
+  const std::size_t compared = root_weights_.size(), dimension = fresh_.dimension(), count = raw.size() / dimension;
   std::vector<float> out(count * compared);
   for (std::size_t row = 0; row < count; ++row) {
     for (std::size_t i = 0; i < compared; ++i) {
-      out[row * compared + i] = static_cast<float>(raw[row * dimension_ + i] * root_weights_[i]);
+      out[row * compared + i] = static_cast<float>(raw[row * dimension + i] * root_weights_[i]);
     }
   }
   return out;
@@ -428,7 +429,7 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
   std::unordered_set<std::int64_t> stored;
   std::vector<std::int64_t> fresh_labels;
   std::vector<float> fresh_vectors;
-  const std::size_t dimension = dimension_;
+  const std::size_t dimension = fresh_.dimension();
   for (std::size_t i = 0; i < all.labels.size(); ++i) {
     stored.insert(all.labels[i]);
     if (in_snapshot.contains(all.labels[i])) continue;

@@ -113,7 +113,6 @@ class ApproximateIndex {
 
   IndexKind kind_;
   std::vector<double> root_weights_;
-  std::size_t dimension_;  // of the raw vectors
   ApproximateIndexSettings settings_;
   mutable std::shared_mutex mutex_;
   std::unique_ptr<faiss::Index> built_;        // guarded by mutex_

@@ -171,11 +171,11 @@ class NearestSelection {
   void consider(StoredShape& stored) {
     if (metric_ == Metric::frechet) return hold(stored);
     const std::optional<double> distance = metric_ == Metric::sketch
-                                               ? std::optional<double>(sketch_distance_of(stored))
+                                               ? std::optional<double>(sketch_distance(query_, stored))
                                                : distance_within(query_, stored, metric_, threshold(), stats_);
     if (!distance) return;
     keep_upper(*distance);
-    top_.offer({std::move(stored.id), *distance, sketch_distance_of(stored), std::move(stored.metadata)});
+    top_.offer({std::move(stored.id), *distance, sketch_distance(query_, stored), std::move(stored.metadata)});
   }
 
   // The answer, nearest first.
@@ -214,14 +214,9 @@ class NearestSelection {
       }
       ++stats_.exact_evaluations;
       const double distance = held->search->value().value;
-      top_.offer({std::move(held->stored.id), distance, sketch_distance_of(held->stored), std::move(held->stored.metadata)});
+      top_.offer({std::move(held->stored.id), distance, sketch_distance(query_, held->stored), std::move(held->stored.metadata)});
     }
     held_.clear();
-  }
-
-  // Computed only for shapes kept: most candidates are refused.
-  double sketch_distance_of(const StoredShape& stored) const {
-    return sketch_distance(query_, stored);
   }
 
   void hold(StoredShape& stored) {
