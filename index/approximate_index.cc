@@ -421,7 +421,7 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
   if (static_cast<std::size_t>(index->d) != root_weights_.size()) {
     return Status(StatusCode::failed_precondition,
                   "snapshot compares " + std::to_string(index->d) + " values per vector, this collection " +
-                      std::to_string(root_weights_.size()) + " (written by an older build, or for another default metric)");
+                      std::to_string(root_weights_.size()) + " (written by an older build)");
   }
   // Catch up with the store: what it holds beyond the snapshot is fresh; what the snapshot
   // holds beyond the store is a tombstone.

@@ -250,18 +250,13 @@ Result<StoredShape> Collection::State::load(const std::string& id, const Generat
   return stored;
 }
 
-Generation::Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings,
-                       Metric default_metric)
+Generation::Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings)
     : sketcher(landmarks),
       index(landmarks.size() + kCurveEndValues),
       origin{(landmarks.domain.min_x + landmarks.domain.max_x) / 2, (landmarks.domain.min_y + landmarks.domain.max_y) / 2} {
   if (kind == IndexKind::exhaustive) return;
   std::vector<double> root_weights;
   for (double weight : landmarks.weights) root_weights.push_back(std::sqrt(weight));
-  // The ends' coordinates count as much as the root mean square of the landmark distances
-  // (uniform layouts weight each landmark 1/n). Any weight from 0.5 to 4 gave Fréchet recall
-  // 1.00 on the DejaVu glyph rings (an offline check of the candidate orders, 2026-12-03).
-  if (compared_dimensions(default_metric) == dimension()) root_weights.resize(dimension(), 1.0);
   approximate = std::make_unique<ApproximateIndex>(kind, std::move(root_weights), dimension(), settings);
 }
 
@@ -394,8 +389,7 @@ std::unique_ptr<Collection::State> new_state(const CollectionSettings& settings,
   auto state = std::make_unique<Collection::State>();
   state->settings = settings;
   state->database = std::move(db);
-  state->current = std::make_shared<Generation>(settings.landmarks, settings.index_kind, settings.approximate,
-                                                settings.default_metric);
+  state->current = std::make_shared<Generation>(settings.landmarks, settings.index_kind, settings.approximate);
   return state;
 }
 

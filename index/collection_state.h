@@ -39,8 +39,7 @@ namespace waymark {
 // candidates (DejaVu glyph rings: fast-mode recall 0.926–0.937 without, see
 // tests/index/real_shapes_test.cc). The ends are derived from the shape record, never stored.
 struct Generation {
-  Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings,
-             Metric default_metric);
+  Generation(const LandmarkSet& landmarks, IndexKind kind, const ApproximateIndexSettings& settings);
   std::uint64_t number() const { return sketcher.landmarks().generation; }
   static constexpr std::size_t kCurveEndValues = 4;
   std::size_t landmark_count() const { return sketcher.dimension(); }
@@ -55,10 +54,9 @@ struct Generation {
   Status remove(std::span<const std::int64_t> labels);
   Sketcher sketcher;
   VectorIndex index;  // internally locked: add/remove while queries search
-  // Graph and partitioned collections only. It compares the landmark distances, weighted, and
-  // the curve ends too when the collection's default metric is a Fréchet one: for Hausdorff
-  // queries the ends would only blur the candidates' order (DejaVu glyph rings: Hausdorff
-  // recall 1.00 without them, 0.83 with them).
+  // Graph and partitioned collections only. It compares the landmark distances, weighted, for
+  // every metric; fast mode re-ranks its candidates by the L∞ bound of the query's metric,
+  // curve ends included for Fréchet (index/query_planner.cc, run_query).
   std::unique_ptr<ApproximateIndex> approximate;
   Point origin;  // the landmark domain's centre: keeps the coordinates' float rounding small
 };

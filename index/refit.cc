@@ -68,8 +68,7 @@ Result<std::uint64_t> Collection::refit(const RefitOptions& options, RefitProgre
   Result<LandmarkSet> fitted = fit_next_generation(state, current->sketcher.landmarks(), options);
   if (!fitted) return fitted.status();
   const CollectionSettings settings_now = settings();
-  auto next = std::make_shared<Generation>(*fitted, settings_now.index_kind, settings_now.approximate,
-                                           settings_now.default_metric);
+  auto next = std::make_shared<Generation>(*fitted, settings_now.index_kind, settings_now.approximate);
   const std::uint64_t number = next->number();
 
   // Abandoning before the switch: forget the next generation and delete what was written of

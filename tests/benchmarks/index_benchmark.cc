@@ -2,14 +2,16 @@
 // mode and a full exact scan, side by side in one run on the same queries.
 // Usage: index_benchmark [SHAPES=100000] [VERTICES=64] [LANDMARKS=64] [QUERIES=50]
 //                        [INDEX=exhaustive|graph|partitioned] [SCANNED_QUERIES=QUERIES]
-//                        [EXACT_QUERIES=QUERIES] [REFIT=0]
+//                        [EXACT_QUERIES=QUERIES] [REFIT=0] [FAST_BUDGETS=0]
 // Prints a table of medians and p99s (milliseconds) with the mean candidates fetched from the
 // store, refused by the decision procedure and given an exact value per query; the exact-mode /
-// full-scan ratio, fast-mode recall@10 against the full scan, and memory and disk per shape.
+// full-scan ratio, fast-mode recall@10 against the full scan and against certified exact-mode
+// answers (the same answers, and affordable at a million shapes), and memory and disk per shape.
 // The full exact scan runs on the first SCANNED_QUERIES queries only (it takes seconds per query
 // at 100k shapes), exact mode on the first EXACT_QUERIES (0 leaves only fast mode, e.g. to
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
-// and prints its time.
+// and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
+// row each (0: the default, 20·k), to show what recall each buys.
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
@@ -52,8 +54,15 @@ int main(int argc, char** argv) {
   const std::size_t scanned_queries = argc > 6 ? std::strtoull(argv[6], nullptr, 10) : queries;
   const std::size_t exact_queries = argc > 7 ? std::strtoull(argv[7], nullptr, 10) : queries;
   const bool refit = argc > 8 && std::string(argv[8]) == "1";
-  if (!kind || queries == 0) {
-    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT]\n");
+  std::vector<std::size_t> fast_budgets;
+  for (const char* next = argc > 9 ? argv[9] : "0"; *next != '\0';) {
+    char* end = nullptr;
+    fast_budgets.push_back(std::strtoull(next, &end, 10));
+    if (end == next) break;
+    next = *end == ',' ? end + 1 : end;
+  }
+  if (!kind || queries == 0 || fast_budgets.empty()) {
+    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT] [FAST_BUDGETS]\n");
     return 2;
   }
   const std::filesystem::path directory = std::filesystem::temp_directory_path() / "waymark-index-benchmark";
@@ -131,23 +140,33 @@ int main(int argc, char** argv) {
               "certified");
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
     struct Mode {
-      const char* name;
+      std::string name;
       bool exact;
       bool scan;
+      std::size_t budget = 0;  // candidate budget; 0: the default
       std::vector<double> times;
       double fetched = 0, refused_by_decision = 0, evaluations = 0;
       int certified = 0;
+      QueryAnswer last;  // this query's answer
+      testing::RecallCount recall, recall_against_certified;  // fast modes: of `last`
+      std::vector<double> kth_ratios;  // fast modes: k-th distance ÷ the certified k-th distance
     };
-    std::vector<Mode> modes = {{"fast", false, false, {}}, {"exact (certified)", true, false, {}}, {"full exact scan", true, true, {}}};
-    testing::RecallCount recall;
+    std::vector<Mode> modes;
+    for (std::size_t budget : fast_budgets) {
+      modes.push_back({budget == 0 ? "fast" : "fast, budget " + std::to_string(budget), false, false, budget});
+    }
+    const std::size_t exact_mode = modes.size(), scan_mode = exact_mode + 1;
+    modes.push_back({"exact (certified)", true, false});
+    modes.push_back({"full exact scan", true, true});
     for (std::size_t q = 0; q < queries; ++q) {
       const Shape query = synthetic(shapes + q, templates);
-      QueryAnswer fast_answer;
       for (Mode& mode : modes) {
+        mode.last = QueryAnswer{};
         if ((mode.scan && q >= scanned_queries) || (mode.exact && !mode.scan && q >= exact_queries)) continue;
         QueryOptions options;
         options.metric = metric;
         options.exact = mode.exact;
+        options.candidate_budget = mode.budget;
         const auto start = Clock::now();
         Result<QueryAnswer> answer = mode.scan ? (*collection)->nearest_by_full_scan(query, options)
                                                : (*collection)->nearest(query, options);
@@ -160,25 +179,43 @@ int main(int argc, char** argv) {
         mode.refused_by_decision += answer->stats.pruned_by_decision;
         mode.evaluations += answer->stats.exact_evaluations;
         mode.certified += answer->certified;
-        if (!mode.exact) fast_answer = *answer;
-        if (mode.scan) recall.add(*answer, fast_answer);
+        mode.last = std::move(*answer);
+      }
+      for (std::size_t m = 0; m < exact_mode; ++m) {
+        if (q < scanned_queries) modes[m].recall.add(modes[scan_mode].last, modes[m].last);
+        // A certified answer is the full scan's (tests/index check this on every query tried).
+        const QueryAnswer& certified = modes[exact_mode].last;
+        if (!certified.certified) continue;
+        modes[m].recall_against_certified.add(certified, modes[m].last);
+        if (!certified.hits.empty() && certified.hits.back().distance > 0 && modes[m].last.hits.size() == certified.hits.size()) {
+          modes[m].kth_ratios.push_back(modes[m].last.hits.back().distance / certified.hits.back().distance);
+        }
       }
     }
     for (const Mode& mode : modes) {
       if (mode.times.empty()) continue;
-      char label[64];
-      std::snprintf(label, sizeof label, "%s, %s", metric_name(metric), mode.name);
+      const std::string label = std::string(metric_name(metric)) + ", " + mode.name;
       const double count = static_cast<double>(mode.times.size());
-      std::printf("%-34s %10.2f %10.2f %8.0f %9.1f %12.1f %9d/%zu\n", label, percentile(mode.times, 0.5),
+      std::printf("%-34s %10.2f %10.2f %8.0f %9.1f %12.1f %9d/%zu\n", label.c_str(), percentile(mode.times, 0.5),
                   percentile(mode.times, 0.99), mode.fetched / count, mode.refused_by_decision / count,
                   mode.evaluations / count, mode.certified, mode.times.size());
     }
-    if (!modes[2].times.empty() && !modes[1].times.empty()) {
+    if (!modes[scan_mode].times.empty() && !modes[exact_mode].times.empty()) {
       std::printf("%s: full scan / exact mode, median time ratio: %.1fx\n", metric_name(metric),
-                  percentile(modes[2].times, 0.5) / percentile(modes[1].times, 0.5));
+                  percentile(modes[scan_mode].times, 0.5) / percentile(modes[exact_mode].times, 0.5));
     }
-    if (!modes[2].times.empty()) {
-      std::printf("%s: fast-mode recall@10 against the full scan: %.3f\n", metric_name(metric), recall.recall());
+    for (std::size_t m = 0; m < exact_mode; ++m) {
+      const std::string label = std::string(metric_name(metric)) + ", " + modes[m].name;
+      if (!modes[scan_mode].times.empty()) {
+        std::printf("%s: recall@10 against the full scan: %.3f\n", label.c_str(), modes[m].recall.recall());
+      }
+      if (modes[exact_mode].certified > 0) {
+        std::printf("%s: recall@10 against the %d certified exact-mode answers: %.3f; 10th distance / certified "
+                    "10th distance: median %.4f, p99 %.4f\n",
+                    label.c_str(), modes[exact_mode].certified, modes[m].recall_against_certified.recall(),
+                    modes[m].kth_ratios.empty() ? 0.0 : percentile(modes[m].kth_ratios, 0.5),
+                    modes[m].kth_ratios.empty() ? 0.0 : percentile(modes[m].kth_ratios, 0.99));
+      }
     }
   }
   if (refit) {
