@@ -23,13 +23,15 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // Fast mode's default candidate budget, per hit asked for. It is the one knob between speed
 // and recall on a graph or partitioned index, whose order (weighted L2 over landmark
 // distances) is only roughly the order of the metric's lower bound and cannot see the curve
-// ends that bound Fréchet. Recall@10 against certified answers and p50, graph index, synthetic
-// shapes (`index_benchmark SHAPES 64 64 QUERIES graph 0 EXACT 0 200,400,1000`):
-//   200k shapes (400 near-copies of each figure): 20·k Hausdorff 0.967 (2.6 ms), Fréchet 0.921
-//   (3.5 ms); 40·k 0.998, 0.987 (see README for the run); 100·k 0.999, 1.000 (4.9, 6.5 ms).
-//   1M (2,000 near-copies of each): 20·k 0.676 (3.4 ms), 0.486 (3.5 ms); 100·k 0.989 (8.0
-//   ms), 0.946 (9.1 ms).
-// Shifted rings (tests/index/approximate_index_test.cc): Fréchet 0.72 at 20·k, 0.97 at 40·k.
+// ends that bound Fréchet. Recall@10 against certified answers and p50 (Hausdorff; Fréchet),
+// graph index, synthetic 64-vertex shapes, one run each on 2026-12-03 (`index_benchmark
+// SHAPES 64 64 QUERIES graph 0 EXACT 0 0,200,1000`):
+//   budget       200k shapes (400 near-copies of each figure)   1M (2,000 near-copies of each)
+//   20·k = 200   0.967, 0.921 (2.1, 2.9 ms)                     0.675, 0.487 (3.1, 3.7 ms)
+//   40·k = 400   1.000, 0.999 (3.2, 4.1 ms)                     0.863, 0.708 (5.9, 6.7 ms)
+//   100·k        1.000, 0.999 (4.2, 5.3 ms)                     0.989, 0.947 (7.6, 10.6 ms)
+// 40·k keeps the p99 at 1M under 10 ms (8.4; 8.6 ms). Shifted rings
+// (tests/index/approximate_index_test.cc): Fréchet 0.72 at 20·k, 0.97 at 40·k.
 constexpr std::size_t kFastCandidatesPerHit = 40;
 
 const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", "sketch"};
