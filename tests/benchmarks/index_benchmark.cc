@@ -54,14 +54,17 @@ int main(int argc, char** argv) {
   const std::size_t scanned_queries = argc > 6 ? std::strtoull(argv[6], nullptr, 10) : queries;
   const std::size_t exact_queries = argc > 7 ? std::strtoull(argv[7], nullptr, 10) : queries;
   const bool refit = argc > 8 && std::string(argv[8]) == "1";
+  // Comma-separated counts; anything else in the list makes it invalid (usage below).
   std::vector<std::size_t> fast_budgets;
-  for (const char* next = argc > 9 ? argv[9] : "0"; *next != '\0';) {
+  bool budgets_valid = true;
+  for (const char* next = argc > 9 ? argv[9] : "0"; budgets_valid && *next != '\0';) {
     char* end = nullptr;
-    fast_budgets.push_back(std::strtoull(next, &end, 10));
-    if (end == next) break;
+    const std::size_t budget = std::strtoull(next, &end, 10);
+    budgets_valid = end != next && (*end == '\0' || (*end == ',' && end[1] != '\0'));
+    fast_budgets.push_back(budget);
     next = *end == ',' ? end + 1 : end;
   }
-  if (!kind || queries == 0 || fast_budgets.empty()) {
+  if (!kind || queries == 0 || !budgets_valid || fast_budgets.empty()) {
     std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT] [FAST_BUDGETS]\n");
     return 2;
   }
@@ -140,9 +143,9 @@ int main(int argc, char** argv) {
               "certified");
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
     struct Mode {
-      std::string name;
-      bool exact;
-      bool scan;
+      std::string name;  // the row's label: metric, then mode
+      bool exact = false;
+      bool scan = false;
       std::size_t budget = 0;  // candidate budget; 0: the default
       std::vector<double> times;
       double fetched = 0, refused_by_decision = 0, evaluations = 0;
@@ -152,12 +155,19 @@ int main(int argc, char** argv) {
       std::vector<double> kth_ratios;  // fast modes: k-th distance ÷ the certified k-th distance
     };
     std::vector<Mode> modes;
+    auto add_mode = [&](const std::string& name, bool exact, bool scan, std::size_t budget) {
+      Mode& mode = modes.emplace_back();
+      mode.name = std::string(metric_name(metric)) + ", " + name;
+      mode.exact = exact;
+      mode.scan = scan;
+      mode.budget = budget;
+    };
     for (std::size_t budget : fast_budgets) {
-      modes.push_back({budget == 0 ? "fast" : "fast, budget " + std::to_string(budget), false, false, budget});
+      add_mode(budget == 0 ? "fast" : "fast, budget " + std::to_string(budget), false, false, budget);
     }
     const std::size_t exact_mode = modes.size(), scan_mode = exact_mode + 1;
-    modes.push_back({"exact (certified)", true, false});
-    modes.push_back({"full exact scan", true, true});
+    add_mode("exact (certified)", true, false, 0);
+    add_mode("full exact scan", true, true, 0);
     for (std::size_t q = 0; q < queries; ++q) {
       const Shape query = synthetic(shapes + q, templates);
       for (Mode& mode : modes) {
@@ -194,9 +204,8 @@ int main(int argc, char** argv) {
     }
     for (const Mode& mode : modes) {
       if (mode.times.empty()) continue;
-      const std::string label = std::string(metric_name(metric)) + ", " + mode.name;
       const double count = static_cast<double>(mode.times.size());
-      std::printf("%-34s %10.2f %10.2f %8.0f %9.1f %12.1f %9d/%zu\n", label.c_str(), percentile(mode.times, 0.5),
+      std::printf("%-34s %10.2f %10.2f %8.0f %9.1f %12.1f %9d/%zu\n", mode.name.c_str(), percentile(mode.times, 0.5),
                   percentile(mode.times, 0.99), mode.fetched / count, mode.refused_by_decision / count,
                   mode.evaluations / count, mode.certified, mode.times.size());
     }
@@ -205,7 +214,7 @@ int main(int argc, char** argv) {
                   percentile(modes[scan_mode].times, 0.5) / percentile(modes[exact_mode].times, 0.5));
     }
     for (std::size_t m = 0; m < exact_mode; ++m) {
-      const std::string label = std::string(metric_name(metric)) + ", " + modes[m].name;
+      const std::string& label = modes[m].name;
       if (!modes[scan_mode].times.empty()) {
         std::printf("%s: recall@10 against the full scan: %.3f\n", label.c_str(), modes[m].recall.recall());
       }
