@@ -232,6 +232,8 @@ class SvgPathReader {
   }
 
   // SVG 1.1 Appendix F.6.5 (endpoint to centre parameterization) and F.6.6 (radii correction).
+  // Computed in units of the arc's largest extent: squares of coordinates near 1e160 would
+  // overflow, and their differences turn into NaN.
   Status arc_to(double rx, double ry, double rotation_degrees, bool large_arc, bool sweep, Point end) {
     ensure_subpath();
     const Point start = current_;
@@ -242,8 +244,14 @@ class SvgPathReader {
     const double phi = rotation_degrees * std::numbers::pi / 180;
     const double cos_phi = std::cos(phi), sin_phi = std::sin(phi);
     const double dx = (start.x - end.x) / 2, dy = (start.y - end.y) / 2;
-    const double x1 = cos_phi * dx + sin_phi * dy;
-    const double y1 = -sin_phi * dx + cos_phi * dy;
+    const double scale = std::max({std::fabs(dx), std::fabs(dy), rx, ry});
+    if (!std::isfinite(scale)) return invalid_argument("arc endpoints are too far apart to compute", cursor_.where());
+    rx /= scale;
+    ry /= scale;
+    // A radius below 1e-300 of the other is no ellipse at any scale that prints: the chord.
+    if (rx == 0 || ry == 0) return add_vertex(end);
+    const double x1 = (cos_phi * dx + sin_phi * dy) / scale;
+    const double y1 = (-sin_phi * dx + cos_phi * dy) / scale;
     const double lambda = (x1 * x1) / (rx * rx) + (y1 * y1) / (ry * ry);
     if (lambda > 1) {
       rx *= std::sqrt(lambda);
@@ -255,14 +263,17 @@ class SvgPathReader {
     if (large_arc == sweep) factor = -factor;
     const double cx1 = factor * rx * y1 / ry;
     const double cy1 = -factor * ry * x1 / rx;
-    const Point center{cos_phi * cx1 - sin_phi * cy1 + (start.x + end.x) / 2,
-                       sin_phi * cx1 + cos_phi * cy1 + (start.y + end.y) / 2};
+    const Point center{scale * (cos_phi * cx1 - sin_phi * cy1) + (start.x + end.x) / 2,
+                       scale * (sin_phi * cx1 + cos_phi * cy1) + (start.y + end.y) / 2};
     const double theta1 = std::atan2((y1 - cy1) / ry, (x1 - cx1) / rx);
     double delta = std::atan2((-y1 - cy1) / ry, (-x1 - cx1) / rx) - theta1;
     if (sweep && delta < 0) delta += 2 * std::numbers::pi;
     if (!sweep && delta > 0) delta -= 2 * std::numbers::pi;
+    if (!std::isfinite(delta) || !std::isfinite(center.x) || !std::isfinite(center.y)) {
+      return invalid_argument("arc cannot be computed (its numbers are out of range)", cursor_.where());
+    }
 
-    const double radius = std::max(rx, ry);
+    const double radius = scale * std::max(rx, ry);
     const double ratio = std::min(1.0, options_.curve_tolerance / radius);
     const double max_step = std::max(2 * std::acos(1 - ratio), 1e-6);
     const std::size_t n = static_cast<std::size_t>(
@@ -270,7 +281,7 @@ class SvgPathReader {
     for (std::size_t i = 1; i <= n; ++i) {
       const double angle = theta1 + delta * static_cast<double>(i) / n;
       const double ex = rx * std::cos(angle), ey = ry * std::sin(angle);
-      const Point q{cos_phi * ex - sin_phi * ey + center.x, sin_phi * ex + cos_phi * ey + center.y};
+      const Point q{scale * (cos_phi * ex - sin_phi * ey) + center.x, scale * (sin_phi * ex + cos_phi * ey) + center.y};
       if (Status s = add_vertex(i == n ? end : q); !s.is_ok()) return s;
     }
     return Status::ok();

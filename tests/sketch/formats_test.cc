@@ -189,6 +189,34 @@ TEST_CASE("SvgArcWithTooSmallRadiiIsScaledUp") {
   for (const Point& p : arc->parts[0]) CHECK(std::hypot(p.x - 5, p.y) == Approx(5).margin(1e-9));
 }
 
+// An arc far from the unit scale is the same figure scaled: its squared coordinates would
+// overflow, so the parser works in units of the arc's extent (a fuzz finding: radii corrected
+// by an infinite factor gave NaN, then an out-of-range conversion).
+TEST_CASE("SvgArcsAtExtremeScalesKeepTheirShape") {
+  ParseOptions options;
+  options.curve_tolerance = 1e-3;
+  for (double scale : {1e-150, 1e160}) {
+    INFO("scale " << scale);
+    ParseOptions scaled_options = options;
+    scaled_options.curve_tolerance = options.curve_tolerance * scale;
+    char text[160];
+    std::snprintf(text, sizeof text, "M0 0 A %.17g %.17g 0 0 1 %.17g 0", scale, scale, 10 * scale);
+    Result<Shape> arc = parse_svg_path(text, scaled_options);
+    REQUIRE(arc.is_ok());
+    // Radii 1 (scaled) grow to half the chord (SVG 1.1 F.6.6): a half circle around (5, 0).
+    REQUIRE(arc->parts[0].size() > 8);
+    for (const Point& p : arc->parts[0]) CHECK(std::hypot(p.x / scale - 5, p.y / scale) == Approx(5).margin(1e-9));
+  }
+  // The fuzzer's input: an endpoint near 8e165, the radii small beside it. It parses or fails
+  // with a message, and any shape it gives has finite coordinates.
+  Result<Shape> far = parse_svg_path("M 10 10 A 5 50 0 1 0 8" + std::string(165, '4') + " 1");
+  if (far.is_ok()) {
+    CHECK(validate(*far, ShapeLimits{}).is_ok());
+  } else {
+    CHECK_FALSE(far.status().message().empty());
+  }
+}
+
 TEST_CASE("SvgErrorsSayWhatAndWhere") {
   Status s = error_of("M 0 0 L 1", ShapeFormat::svg_path);
   CHECK(s.message() == "expected a number for the 'L' command, found end of input");
