@@ -502,7 +502,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   state->database->GetIntProperty(rocksdb::DB::Properties::kEstimateNumKeys, &estimated_keys);
   const std::size_t estimated_shapes = static_cast<std::size_t>(estimated_keys / 2);
   state->label_of_id.reserve(estimated_shapes);
-  state->id_of_label.reserve(estimated_shapes);
+  state->shape_of_label.reserve(estimated_shapes);
   std::vector<std::int64_t> labels;
   std::vector<float> vectors;
   // One snapshot for both iterators, so they see the same store. The scan reads every block
@@ -543,7 +543,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
     }
     sketches->Next();
     state->label_of_id[id] = stored->label;
-    state->id_of_label[stored->label] = id;
+    state->shape_of_label[stored->label] = {id, ResidentCopy::of(apply_frame(stored->shape, settings.frame))};
     state->next_label = std::max(state->next_label, stored->label + 1);
     labels.push_back(stored->label);
     generation.append_index_vector(sketch->values, stored->shape, settings.frame, vectors);
@@ -637,6 +637,9 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   if (Status s = from_rocksdb(state.database->Write(durable_write(), &write), "writing a batch"); !s.is_ok()) return s;
 
   // Durable: now make it searchable.
+  std::vector<ResidentCopy> copies;
+  copies.reserve(winners.size());
+  for (std::size_t i : winners) copies.push_back(ResidentCopy::of(framed[i]));
   std::unique_lock lock(state.labels_mutex);
   if (Status s = current.remove(old_labels); !s.is_ok()) return s;
   if (Status s = current.add(new_labels, index_vectors); !s.is_ok()) return s;
@@ -644,11 +647,11 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     if (Status s = pending->remove(old_labels); !s.is_ok()) return s;
     if (Status s = pending->add(pending_labels, pending_vectors); !s.is_ok()) return s;
   }
-  for (std::int64_t old : old_labels) state.id_of_label.erase(old);
+  for (std::int64_t old : old_labels) state.shape_of_label.erase(old);
   for (std::size_t w = 0; w < winners.size(); ++w) {
     const std::string& id = batch[winners[w]].id;
     state.label_of_id[id] = new_labels[w];
-    state.id_of_label[new_labels[w]] = id;
+    state.shape_of_label[new_labels[w]] = {id, std::move(copies[w])};
   }
   state.next_label = next_label;
   lock.unlock();
@@ -685,7 +688,7 @@ Status Collection::remove(std::span<const std::string> ids) {
     if (Status s = pending->remove(labels); !s.is_ok()) return s;
   }
   for (std::size_t i = 0; i < labels.size(); ++i) {
-    state.id_of_label.erase(labels[i]);
+    state.shape_of_label.erase(labels[i]);
     state.label_of_id.erase(removed[i]);
   }
   lock.unlock();
@@ -720,6 +723,7 @@ CollectionStatistics Collection::statistics() const {
     statistics.shape_count = state_->label_of_id.size();
     std::size_t id_bytes = 0;
     for (const auto& [id, label] : state_->label_of_id) id_bytes += id.size();
+    for (const auto& [label, labelled] : state_->shape_of_label) statistics.resident_copy_bytes += labelled.copy.bytes();
     // Two hash maps (id ↔ label): key, value and about two pointers of node and bucket each.
     const Generation& generation = *state_->current;
     if (generation.approximate) statistics.approximate = generation.approximate->status();

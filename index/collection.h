@@ -18,7 +18,9 @@
 // in order of that L∞ value, which is a lower bound on the exact distance; each is checked
 // against lower bounds (the sketch L∞ bound, the bounding-box bound and, for Fréchet, the
 // endpoint bound) and against the decision procedure at the current k-th best before its
-// exact distance is computed. Every unseen shape's distance is at least the last candidate's
+// exact distance is computed; the decision is first made on an in-memory float copy of the
+// shape, so that most refused candidates are never read from the store
+// (index/resident_copy.h). Every unseen shape's distance is at least the last candidate's
 // L∞ value; once that exceeds the k-th best exact distance the answer is certified exact: no
 // stored shape outside it is closer. (Metric::sketch ranks the drawn candidates by sketch L2:
 // an estimate, certified only when every shape was drawn.) Both modes draw candidates in
@@ -51,9 +53,8 @@ struct CollectionSettings {
   ShapeLimits limits;
   std::size_t max_id_bytes = 256;
   std::size_t max_metadata_bytes = 16 * 1024;
-  // For callers that name none (the server). A frechet or discrete-frechet default also makes
-  // a graph or partitioned index compare the curves' ends, which Fréchet candidates need and
-  // Hausdorff ones do not (index/collection_state.h, Generation).
+  // For callers that name none (the server). It does not shape any index: fast mode scores a
+  // graph or partitioned index's candidates by the query metric's own bound.
   Metric default_metric = Metric::hausdorff;
   // exhaustive: every query walks the L∞ index. graph / partitioned: fast-mode queries take
   // their candidates from an approximate index (index/approximate_index.h) once the collection
@@ -136,6 +137,7 @@ struct CollectionStatistics {
   std::size_t shape_count = 0;
   ApproximateIndexStatus approximate;  // all zero for exhaustive collections
   std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
+  std::size_t resident_copy_bytes = 0;  // float copies of the shapes, in memory (resident_copy_bytes())
   std::size_t store_bytes = 0;          // RocksDB files on disk and memtables (estimate)
   std::size_t memtable_bytes = 0;       // of which memtables: writes not yet flushed, in memory
   std::size_t table_reader_bytes = 0;   // RocksDB's in-memory index and filter blocks of its files
@@ -148,6 +150,13 @@ std::size_t shared_block_cache_bytes();
 std::size_t shared_block_cache_capacity();
 // Sets that capacity (512 MiB until set); shrinking evicts at once. Thread-safe.
 void set_shared_block_cache_capacity(std::size_t bytes);
+// Bytes held now by the in-memory float copies of stored shapes that every collection of this
+// process keeps (queries refuse most candidates on them without a store read;
+// index/resident_copy.h), and their capacity. A shape that would pass the capacity gets no copy
+// (its candidates are read from the store); lowering it drops no copy already made.
+std::size_t resident_copy_bytes();
+std::size_t resident_copy_capacity();
+void set_resident_copy_capacity(std::size_t bytes);  // 1 GiB until set; thread-safe
 
 class Collection {
  public:

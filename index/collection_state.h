@@ -18,6 +18,7 @@
 #include <vector>
 
 #include "index/collection.h"
+#include "index/resident_copy.h"
 #include "index/vector_index.h"
 #include "sketch/landmarks/sketcher.h"
 
@@ -82,7 +83,13 @@ struct Collection::State {
   mutable std::shared_mutex labels_mutex;  // guards the maps, next_label, settings.landmarks and `current`
   std::shared_ptr<Generation> current;
   std::unordered_map<std::string, std::int64_t> label_of_id;
-  std::unordered_map<std::int64_t, std::string> id_of_label;
+  // What a label stands for: the id it is stored under and, capacity allowing, a float copy of
+  // the shape in the collection's frame (removed with the label).
+  struct Labelled {
+    std::string id;
+    ResidentCopy copy;
+  };
+  std::unordered_map<std::int64_t, Labelled> shape_of_label;
   std::int64_t next_label = 1;
 
   std::mutex write_mutex;  // writes are serialised; also guards the refit fields below

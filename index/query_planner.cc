@@ -295,17 +295,54 @@ class MetadataFilter {
   nlohmann::json required_ = nlohmann::json::object();
 };
 
-// The stored shape under `label`, framed, when it is still stored under that label and passes
-// the filter; nullopt when it was removed or replaced since the index was searched (also how
-// an approximate index's tombstones are skipped) or filtered out.
+// Discrete Fréchet has no decision procedure and Metric::sketch no exact distance.
+bool copies_can_refuse(Metric metric) { return metric == Metric::hausdorff || metric == Metric::frechet; }
+
+// How much wider than threshold + displacement a copy's decision is made, relative to the
+// largest coordinate magnitude of the query and the copy. The decision procedures resolve
+// distances only to about √(machine epsilon) × that magnitude where two curves nearly
+// coincide (free-space intervals from a difference of squares), and a copy lies about 1e-8 of
+// it from its shape: ManyTiedCopiesKeepTheSmallestIdsAndMatchTheFullScan refused tied copies
+// without this margin. Pruning loses nothing measurable at it.
+constexpr double kCopyDecisionMargin = 1e-6;
+
+double largest_magnitude(const Box& box) {
+  return std::max({std::fabs(box.min_x), std::fabs(box.max_x), std::fabs(box.min_y), std::fabs(box.max_y)});
+}
+
+// Whether the shape's float copy (index/resident_copy.h) proves it farther than `threshold`
+// under `metric` (one that copies_can_refuse): the decision procedure at threshold + the
+// copy's displacement + the margin above.
+bool refused_by_copy(const PreparedQuery& query, const ResidentCopy::Decoded& copy, Metric metric, double threshold) {
+  const double magnitude =
+      std::max(largest_magnitude(query.prepared.box), largest_magnitude(bounding_box(copy.shape)));
+  const double widened = threshold + copy.displacement + kCopyDecisionMargin * magnitude;
+  if (metric == Metric::hausdorff) return !hausdorff_at_most(query.prepared, PreparedShape(copy.shape), widened);
+  Result<Path> curve = curve_of(copy.shape);
+  return curve && !FrechetSearch::start(*query.curve, *curve, widened);
+}
+
+// The stored shape under `label`, framed, when it is still stored under that label, can be
+// within `threshold` (∞: any) and passes the filter; nullopt when it was removed or replaced
+// since the index was searched (also how an approximate index's tombstones are skipped), its
+// float copy proves it farther than `threshold` (no store read then), or it was filtered out.
 Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state, const PreparedQuery& query,
-                                                  std::int64_t label, const MetadataFilter& filter, QueryStats& stats) {
+                                                  std::int64_t label, Metric metric, double threshold,
+                                                  const MetadataFilter& filter, QueryStats& stats) {
   std::string id;
+  std::optional<ResidentCopy::Decoded> copy;
   {
     std::shared_lock lock(state.labels_mutex);
-    auto found = state.id_of_label.find(label);
-    if (found == state.id_of_label.end()) return std::optional<StoredShape>();
-    id = found->second;
+    auto found = state.shape_of_label.find(label);
+    if (found == state.shape_of_label.end()) return std::optional<StoredShape>();
+    id = found->second.id;
+    if (threshold < kInfinity && copies_can_refuse(metric) && !found->second.copy.empty()) {
+      copy = found->second.copy.decode();
+    }
+  }
+  if (copy && refused_by_copy(query, *copy, metric, threshold)) {
+    ++stats.pruned_by_decision;
+    return std::optional<StoredShape>();
   }
   Result<StoredShape> candidate = state.load(id, *query.generation, label);
   if (!candidate) {
@@ -322,16 +359,17 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
 
 // Walks the exhaustive index in lower-bound order (L∞ over the index-vector values that bound
 // `metric`: Generation::compared_dimensions), in rounds that grow ×4 from `first_fetch`,
-// handing each stored candidate (not excluded, passing the filter) to `visit`. Before each
+// handing each stored candidate (not excluded, passing the filter, not refused at
+// `threshold()` by its float copy) to `visit`. Before each
 // candidate and after each round `enough(unseen_bound)` says whether to stop, where
 // unseen_bound is a lower bound on the exact distance of every shape not drawn yet. Returns
 // whether every stored shape was drawn or ruled out by the bound (so the caller's answer is
 // complete).
-template <typename Visit, typename Enough>
+template <typename Threshold, typename Visit, typename Enough>
 Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
                              Metric metric, std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
-                             std::size_t first_fetch, std::size_t budget, QueryStats& stats, Visit visit,
-                             Enough enough) {
+                             std::size_t first_fetch, std::size_t budget, QueryStats& stats, Threshold threshold,
+                             Visit visit, Enough enough) {
   Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw, query.generation->compared_dimensions(metric));
   if (!scan) return scan.status();
   // The scan is in that order, so every shape not drawn yet has an L∞ difference ≥ the next
@@ -344,7 +382,8 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
       // Once this shape is ruled out, so is every later one: none of them is read.
       if (enough(query.lower_bound_from(n.distance))) return true;
       if (n.label == excluded_label) continue;
-      Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, filter, stats);
+      Result<std::optional<StoredShape>> candidate =
+          draw_candidate(state, query, n.label, metric, threshold(), filter, stats);
       if (!candidate) return candidate.status();
       if (*candidate && !visit(**candidate)) return false;
     }
@@ -400,7 +439,8 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
         answer.stats.pruned_by_sketch_bound += 1;
         continue;
       }
-      Result<std::optional<StoredShape>> candidate = draw_candidate(state, query, n.label, *filter, answer.stats);
+      Result<std::optional<StoredShape>> candidate =
+          draw_candidate(state, query, n.label, options.metric, selection.threshold(), *filter, answer.stats);
       if (!candidate) return candidate.status();
       if (*candidate) selection.consider(**candidate);
     }
@@ -411,7 +451,7 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
   // Metric::sketch has no exact distance to certify against: it stops only at the budget.
   Result<bool> complete = walk_candidates(
       state, query, options.metric, excluded_label, *filter, std::max<std::size_t>(4 * options.k, 32), budget,
-      answer.stats,
+      answer.stats, [&] { return selection.threshold(); },
       [&](StoredShape& candidate) {
         selection.consider(candidate);
         return true;
@@ -465,6 +505,7 @@ Result<QueryAnswer> Collection::within(const Shape& query, const RangeOptions& o
   bool truncated = false;
   Result<bool> complete = walk_candidates(
       *state_, prepared, options.metric, std::nullopt, *filter, 64, prepared.generation->index.size(), answer.stats,
+      [&] { return options.radius; },
       [&](const StoredShape& candidate) {
         if (std::optional<double> distance =
                 distance_within(prepared, candidate, options.metric, options.radius, answer.stats);

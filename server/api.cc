@@ -260,6 +260,7 @@ Json describe(const std::string& name, const Collection& collection) {
           {"stats",
            {{"shapes", statistics.shape_count},
             {"index_bytes", statistics.index_bytes},
+            {"resident_copy_bytes", statistics.resident_copy_bytes},
             {"store_bytes", statistics.store_bytes},
             {"last_write", statistics.last_write_unix_ms == 0 ? Json(nullptr) : Json(iso_time(statistics.last_write_unix_ms))},
             {"approximate_index", approximate_json(settings.index_kind, statistics.approximate)}}}};
@@ -551,14 +552,15 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
     if (catalog) {
       for (const auto& [name, collection] : catalog->list()) {
         const CollectionStatistics statistics = collection->statistics();
-        gauges.push_back({name, statistics.shape_count, statistics.index_bytes, statistics.store_bytes,
-                          statistics.memtable_bytes, statistics.table_reader_bytes});
+        gauges.push_back({name, statistics.shape_count, statistics.index_bytes, statistics.resident_copy_bytes,
+                          statistics.store_bytes, statistics.memtable_bytes, statistics.table_reader_bytes});
       }
     }
     HttpResponse response;
     response.content_type = "text/plain; version=0.0.4";
     response.body = metrics_.exposition(gauges, {resident_memory_bytes(), shared_block_cache_bytes(),
-                                                 shared_block_cache_capacity()});
+                                                 shared_block_cache_capacity(), resident_copy_bytes(),
+                                                 resident_copy_capacity()});
     return response;
   }
   if (pattern == "/v1/collections") {

@@ -22,6 +22,7 @@ const Json& defaults() {
       {"max_bulk_body_bytes", 512 * 1024 * 1024},
       {"min_free_disk_bytes", 64 * 1024 * 1024},
       {"block_cache_bytes", 512 * 1024 * 1024},
+      {"resident_copy_bytes", 1024 * 1024 * 1024},
       {"bulk_batch_size", 1000},
       {"max_vertices", 100000},
       {"max_k", 1000},
@@ -114,6 +115,7 @@ Result<ServerConfig> to_config(const Json& merged) {
   config.max_bulk_body_bytes = size("max_bulk_body_bytes");
   config.min_free_disk_bytes = size("min_free_disk_bytes");
   config.block_cache_bytes = size("block_cache_bytes");
+  config.resident_copy_bytes = size("resident_copy_bytes");
   config.bulk_batch_size = size("bulk_batch_size");
   config.max_vertices = size("max_vertices");
   config.max_k = size("max_k");

@@ -35,6 +35,7 @@ struct ServerConfig {
   // Capacity of the store's block cache, shared by every collection: the bound on the memory
   // that query reads keep (index and id maps come on top, in proportion to the shapes stored).
   std::size_t block_cache_bytes = 0;
+  std::size_t resident_copy_bytes = 0;
   std::size_t bulk_batch_size = 0;      // shapes per durable batch during bulk ingest
   std::size_t max_vertices = 0;         // per shape, for new collections and for queries
   std::size_t max_k = 0;

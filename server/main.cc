@@ -84,6 +84,7 @@ int main(int argc, char** argv) {
       approximate.minimum_size = config->approximate_index_minimum_size;
       approximate.rebuild_fraction = static_cast<double>(config->approximate_index_rebuild_percent) / 100;
       set_shared_block_cache_capacity(config->block_cache_bytes);
+      set_resident_copy_capacity(config->resident_copy_bytes);
       Result<std::unique_ptr<Catalog>> catalog = Catalog::open(config->data_directory, approximate);
       if (!catalog) {
         spdlog::critical("cannot open the data directory '{}': {}", config->data_directory,

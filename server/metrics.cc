@@ -113,6 +113,8 @@ std::string Metrics::exposition(const std::vector<CollectionGauges>& collections
   per_collection("waymark_collection_shapes", "Shapes stored, by collection.", &CollectionGauges::shapes);
   per_collection("waymark_collection_index_bytes", "Memory of the vector index and id maps, by collection.",
                  &CollectionGauges::index_bytes);
+  per_collection("waymark_collection_resident_copy_bytes", "Float copies of the stored shapes, in memory, by collection.",
+                 &CollectionGauges::resident_copy_bytes);
   per_collection("waymark_collection_store_bytes", "Store files and memtables, by collection.",
                  &CollectionGauges::store_bytes);
   per_collection("waymark_collection_memtable_bytes", "Store writes not yet flushed to files, in memory, by collection.",
@@ -124,6 +126,11 @@ std::string Metrics::exposition(const std::vector<CollectionGauges>& collections
          process.block_cache_bytes);
   single("waymark_block_cache_capacity_bytes", "gauge", "Capacity of the shared block cache.",
          process.block_cache_capacity_bytes);
+  single("waymark_resident_copy_bytes", "gauge",
+         "Float copies of stored shapes that queries refuse candidates on without a store read.",
+         process.resident_copy_bytes);
+  single("waymark_resident_copy_capacity_bytes", "gauge", "Capacity of the float copies (resident_copy_bytes).",
+         process.resident_copy_capacity_bytes);
   return out.str();
 }
 

@@ -17,6 +17,7 @@ struct CollectionGauges {
   std::string name;
   std::size_t shapes = 0;
   std::size_t index_bytes = 0;
+  std::size_t resident_copy_bytes = 0;
   std::size_t store_bytes = 0;
   std::size_t memtable_bytes = 0;
   std::size_t table_reader_bytes = 0;
@@ -30,6 +31,8 @@ struct ProcessGauges {
   std::size_t resident_bytes = 0;            // from /proc/self/statm; 0 where unavailable
   std::size_t block_cache_bytes = 0;         // the store's shared block cache
   std::size_t block_cache_capacity_bytes = 0;
+  std::size_t resident_copy_bytes = 0;  // float copies of stored shapes, every collection
+  std::size_t resident_copy_capacity_bytes = 0;
 };
 
 struct QueryCounts {

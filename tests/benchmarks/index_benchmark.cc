@@ -135,10 +135,13 @@ int main(int argc, char** argv) {
     std::printf("restart with the approximate index's snapshot (open, load, catch up): %.2f s\n",
                 reopen_with_snapshot_seconds);
   }
-  std::printf("per shape: %.0f bytes in memory (indexes and id maps), %.0f bytes on disk; raw vertices + vector "
-              "%.0f bytes; memory / raw %.2f, disk / raw %.2f\n",
-              static_cast<double>(statistics.index_bytes) / shapes, static_cast<double>(statistics.store_bytes) / shapes,
-              raw_bytes, statistics.index_bytes / shapes / raw_bytes, statistics.store_bytes / shapes / raw_bytes);
+  const double memory_bytes = static_cast<double>(statistics.index_bytes + statistics.resident_copy_bytes) / shapes;
+  std::printf("per shape: %.0f bytes in memory (indexes and id maps %.0f, float copies %.0f), %.0f bytes on disk; raw "
+              "vertices + vector %.0f bytes; memory / raw %.2f, disk / raw %.2f\n",
+              memory_bytes, static_cast<double>(statistics.index_bytes) / shapes,
+              static_cast<double>(statistics.resident_copy_bytes) / shapes,
+              static_cast<double>(statistics.store_bytes) / shapes, raw_bytes, memory_bytes / raw_bytes,
+              statistics.store_bytes / shapes / raw_bytes);
   std::printf("%-34s %10s %10s %8s %9s %12s %10s\n", "kNN k=10", "p50 ms", "p99 ms", "fetched", "refused", "exact evals",
               "certified");
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {

@@ -461,6 +461,11 @@ def run_api_checks(server, directory):
     check(abs(gauges.get("process_resident_memory_bytes", 0) - kernel_rss) < 0.2 * kernel_rss,
           "resident memory gauge %s vs kernel %d" % (gauges.get("process_resident_memory_bytes"), kernel_rss))
     check(gauges.get("waymark_block_cache_capacity_bytes") == 512 * 1024 * 1024, "block cache capacity gauge")
+    # Float copies of the 603 stored shapes: at least a 7-word header and one 8-byte vertex each.
+    check(gauges.get("waymark_resident_copy_capacity_bytes") == 1024 * 1024 * 1024, "float copy capacity gauge")
+    copies = gauges.get('waymark_collection_resident_copy_bytes{collection="parts"}', 0)
+    check(copies >= 603 * (28 + 8) and gauges.get("waymark_resident_copy_bytes", 0) >= copies,
+          "float copy gauges %s" % copies)
     check(gauges.get('waymark_collection_memtable_bytes{collection="parts"}', 0) > 0, "memtable gauge")
 
     # A second collection can be created and dropped.

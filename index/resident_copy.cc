@@ -1,0 +1,116 @@
+#include "index/resident_copy.h"
+
+#include <atomic>
+#include <bit>
+#include <cmath>
+#include <cstring>
+#include <limits>
+#include <utility>
+
+#include "index/collection.h"
+
+namespace waymark {
+namespace {
+
+std::atomic<std::size_t> bytes_in_use{0};
+std::atomic<std::size_t> capacity{std::size_t{1} << 30};
+
+// Layout, in 32-bit words: kind, part count P, P part lengths, P ring-to-polygon indices
+// (polygon kind only), the box centre as two doubles (4 words), the displacement as a float,
+// then x and y of every vertex as floats, relative to the centre.
+constexpr std::size_t kCentreWords = 4;
+
+std::uint32_t float_word(float value) { return std::bit_cast<std::uint32_t>(value); }
+float word_float(std::uint32_t word) { return std::bit_cast<float>(word); }
+
+}  // namespace
+
+std::size_t resident_copy_bytes() { return bytes_in_use.load(); }
+std::size_t resident_copy_capacity() { return capacity.load(); }
+void set_resident_copy_capacity(std::size_t bytes) { capacity.store(bytes); }
+
+ResidentCopy ResidentCopy::of(const Shape& framed) {
+  const std::size_t parts = framed.parts.size();
+  const bool polygon = framed.kind == ShapeKind::polygon;
+  const std::size_t header = 2 + parts * (polygon ? 2 : 1) + kCentreWords + 1;
+  const std::size_t words = header + 2 * framed.vertex_count();
+  const std::size_t bytes = words * sizeof(std::uint32_t);
+  if (bytes_in_use.fetch_add(bytes) + bytes > capacity.load()) {
+    bytes_in_use.fetch_sub(bytes);
+    return {};
+  }
+  ResidentCopy copy;
+  copy.words_ = std::make_unique<std::uint32_t[]>(words);
+  copy.word_count_ = words;  // from here on the destructor returns the bytes
+  std::uint32_t* out = copy.words_.get();
+  *out++ = static_cast<std::uint32_t>(framed.kind);
+  *out++ = static_cast<std::uint32_t>(parts);
+  for (const Path& part : framed.parts) *out++ = static_cast<std::uint32_t>(part.size());
+  if (polygon) {
+    for (std::size_t i = 0; i < parts; ++i) *out++ = framed.polygon_of_ring[i];
+  }
+  // Relative to the box centre, the floats' rounding is relative to the shape's extent, not to
+  // its distance from the frame's origin.
+  const Box box = bounding_box(framed);
+  const double centre[2] = {box.min_x / 2 + box.max_x / 2, box.min_y / 2 + box.max_y / 2};
+  std::memcpy(out, centre, sizeof(centre));
+  out += kCentreWords;
+  std::uint32_t* displacement_word = out++;
+  double displacement = 0;
+  for (const Path& part : framed.parts) {
+    for (const Point& p : part) {
+      const float x = static_cast<float>(p.x - centre[0]), y = static_cast<float>(p.y - centre[1]);
+      if (!std::isfinite(x) || !std::isfinite(y)) return {};
+      // The same arithmetic as decode(), so the distance is to the vertex it will return.
+      displacement = std::max(displacement, std::hypot(p.x - (centre[0] + x), p.y - (centre[1] + y)));
+      *out++ = float_word(x);
+      *out++ = float_word(y);
+    }
+  }
+  // Rounded up twice over: hypot's own error (an ulp or so) and the float conversion.
+  const float bound = std::nextafter(static_cast<float>(displacement * (1 + 1e-9)), std::numeric_limits<float>::infinity());
+  if (!std::isfinite(bound)) return {};
+  *displacement_word = float_word(bound);
+  return copy;
+}
+
+ResidentCopy::ResidentCopy(ResidentCopy&& other) noexcept
+    : words_(std::move(other.words_)), word_count_(std::exchange(other.word_count_, 0)) {}
+
+ResidentCopy& ResidentCopy::operator=(ResidentCopy&& other) noexcept {
+  if (this != &other) {
+    bytes_in_use.fetch_sub(bytes());
+    words_ = std::move(other.words_);
+    word_count_ = std::exchange(other.word_count_, 0);
+  }
+  return *this;
+}
+
+ResidentCopy::~ResidentCopy() { bytes_in_use.fetch_sub(bytes()); }
+
+ResidentCopy::Decoded ResidentCopy::decode() const {
+  const std::uint32_t* in = words_.get();
+  Decoded decoded;
+  decoded.shape.kind = static_cast<ShapeKind>(*in++);
+  const std::size_t parts = *in++;
+  decoded.shape.parts.resize(parts);
+  for (Path& part : decoded.shape.parts) part.resize(*in++);
+  if (decoded.shape.kind == ShapeKind::polygon) {
+    decoded.shape.polygon_of_ring.assign(in, in + parts);
+    in += parts;
+  }
+  double centre[2];
+  std::memcpy(centre, in, sizeof(centre));
+  in += kCentreWords;
+  decoded.displacement = word_float(*in++);
+  for (Path& part : decoded.shape.parts) {
+    for (Point& p : part) {
+      p.x = centre[0] + word_float(in[0]);
+      p.y = centre[1] + word_float(in[1]);
+      in += 2;
+    }
+  }
+  return decoded;
+}
+
+}  // namespace waymark

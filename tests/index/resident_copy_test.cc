@@ -1,0 +1,168 @@
+// Float copies of stored shapes (index/resident_copy.h): their displacement bound, their
+// refusals of unrepresentable shapes, the shared capacity, and — the property queries rely on —
+// that refusing candidates on them changes no answer and saves store reads.
+#include <catch2/catch.hpp>
+
+#include <cmath>
+#include <limits>
+
+#include "index/collection.h"
+#include "index/resident_copy.h"
+#include "support/collection_helpers.h"
+#include "support/random_shapes.h"
+
+using namespace waymark;
+using namespace waymark::testing;
+
+namespace {
+
+// Restores the process-wide capacity when a test ends, whatever it set.
+struct CapacityGuard {
+  std::size_t saved = resident_copy_capacity();
+  ~CapacityGuard() { set_resident_copy_capacity(saved); }
+};
+
+// The largest distance from a vertex of the copy to the stored vertex, in long double.
+long double largest_vertex_distance(const Shape& stored, const Shape& copy) {
+  long double largest = 0;
+  for (std::size_t part = 0; part < stored.parts.size(); ++part) {
+    for (std::size_t i = 0; i < stored.parts[part].size(); ++i) {
+      const long double dx = static_cast<long double>(stored.parts[part][i].x) - copy.parts[part][i].x;
+      const long double dy = static_cast<long double>(stored.parts[part][i].y) - copy.parts[part][i].y;
+      largest = std::max(largest, std::sqrt(dx * dx + dy * dy));
+    }
+  }
+  return largest;
+}
+
+}  // namespace
+
+TEST_CASE("AFloatCopyKeepsTheStructureAndBoundsItsDisplacement") {
+  SeededRandom random(3);
+  // Far from the origin and small: the copy is relative to the box centre, so its rounding
+  // follows the extent (about 10 here), not the offset (1e9).
+  for (const double offset : {0.0, 1e9, -3.5e12}) {
+    INFO("offset " << offset);
+    Shape shape = random_walk(random, 50);
+    shape.parts.push_back(random_walk(random, 7).parts[0]);
+    shape.kind = ShapeKind::polygon;
+    shape.polygon_of_ring = {0, 0};
+    for (Path& part : shape.parts) {
+      for (Point& p : part) p = {p.x + offset, p.y - offset};
+    }
+    const ResidentCopy copy = ResidentCopy::of(shape);
+    REQUIRE_FALSE(copy.empty());
+    const ResidentCopy::Decoded decoded = copy.decode();
+    CHECK(decoded.shape.kind == shape.kind);
+    CHECK(decoded.shape.polygon_of_ring == shape.polygon_of_ring);
+    REQUIRE(decoded.shape.parts.size() == 2);
+    CHECK(decoded.shape.parts[0].size() == 50);
+    CHECK(decoded.shape.parts[1].size() == 7);
+    const long double largest = largest_vertex_distance(shape, decoded.shape);
+    CHECK(largest <= decoded.displacement);
+    // Binary32 has a 24-bit significand (IEEE 754-2019, table 3.5): rounding moves a
+    // coordinate by at most 2^-24 of its magnitude, here below 2 · extent; the bound is a
+    // float rounded up, so allow it twice that.
+    const Box box = bounding_box(shape);
+    const double extent = std::max(box.width(), box.height());
+    CHECK(decoded.displacement <= 4 * std::sqrt(2.0) * extent * std::ldexp(1.0, -24));
+    CHECK(decoded.displacement > 0);  // random coordinates are not all floats: the bound is not vacuous
+    CHECK(copy.bytes() == (2 + 2 * 2 + 4 + 1 + 2 * 57) * sizeof(std::uint32_t));
+  }
+}
+
+TEST_CASE("AShapeBeyondFloatRangeOrTheCapacityGetsNoCopy") {
+  CapacityGuard guard;
+  Shape huge;
+  huge.kind = ShapeKind::polyline;
+  huge.parts = {{{-1e300, 0}, {1e300, 0}}};  // 1e300 from its centre: no finite float
+  CHECK(ResidentCopy::of(huge).empty());
+
+  SeededRandom random(4);
+  const Shape shape = random_walk(random, 64);
+  set_resident_copy_capacity(resident_copy_bytes() + 1000);  // room for one 64-vertex copy (540 bytes)
+  const std::size_t before = resident_copy_bytes();
+  {
+    ResidentCopy first = ResidentCopy::of(shape);
+    CHECK_FALSE(first.empty());
+    CHECK(resident_copy_bytes() == before + first.bytes());
+    CHECK(ResidentCopy::of(shape).empty());  // would pass the capacity
+    ResidentCopy moved = std::move(first);
+    CHECK(resident_copy_bytes() == before + moved.bytes());
+  }
+  CHECK(resident_copy_bytes() == before);  // returned when the copies go
+}
+
+TEST_CASE("RefusingOnFloatCopiesChangesNoAnswerAndSavesStoreReads") {
+  CapacityGuard guard;
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(3000, 71);
+  {
+    CollectionSettings settings = settings_with(32);
+    settings.index_kind = IndexKind::graph;
+    settings.approximate.minimum_size = 500;
+    Result<std::unique_ptr<Collection>> created = Collection::create(directory.path, settings);
+    REQUIRE(created.is_ok());
+    REQUIRE((*created)->upsert(records).is_ok());
+    REQUIRE((*created)->build_approximate_index_now().is_ok());  // and its snapshot: both opens load one graph
+  }
+  // Every kind of query that draws candidates: fast (graph) and exact kNN, by shape and by
+  // stored id, and range; Hausdorff and Fréchet.
+  struct Run {
+    std::vector<QueryAnswer> answers;
+    std::size_t store_reads = 0;
+    std::size_t copy_bytes = 0;
+  };
+  auto run_queries = [&](std::size_t capacity) {
+    set_resident_copy_capacity(capacity);
+    ApproximateIndexSettings approximate;
+    approximate.minimum_size = 500;
+    Result<std::unique_ptr<Collection>> opened = Collection::open(directory.path, approximate);
+    REQUIRE(opened.is_ok());
+    const Collection& collection = **opened;
+    REQUIRE(collection.statistics().approximate.snapshot == "loaded");
+    Run run;
+    run.copy_bytes = collection.statistics().resident_copy_bytes;
+    SeededRandom random(72);
+    for (int q = 0; q < 12; ++q) {
+      const ShapeRecord& record = records[random.below(records.size())];
+      Shape query = record.shape;
+      for (Point& p : query.parts[0]) p.x += 0.05 * random.uniform();
+      for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
+        for (bool exact : {false, true}) {
+          QueryOptions options;
+          options.metric = metric;
+          options.exact = exact;
+          for (Result<QueryAnswer> answer : {collection.nearest(query, options),
+                                             collection.nearest_to_stored(record.id, options)}) {
+            REQUIRE(answer.is_ok());
+            run.store_reads += answer->stats.candidates_fetched;
+            run.answers.push_back(std::move(*answer));
+          }
+        }
+        RangeOptions range;
+        range.metric = metric;
+        range.radius = run.answers.back().hits.at(4).distance;  // the 5th nearest: a few hits
+        Result<QueryAnswer> within = collection.within(query, range);
+        REQUIRE(within.is_ok());
+        run.store_reads += within->stats.candidates_fetched;
+        run.answers.push_back(std::move(*within));
+      }
+    }
+    return run;
+  };
+  const Run without = run_queries(0);
+  const Run with = run_queries(std::size_t{1} << 30);
+  CHECK(without.copy_bytes == 0);
+  CHECK(with.copy_bytes > 0);
+  REQUIRE(with.answers.size() == without.answers.size());
+  for (std::size_t i = 0; i < with.answers.size(); ++i) {
+    INFO("query " << i);
+    require_same(with.answers[i], without.answers[i]);
+    CHECK(with.answers[i].certified == without.answers[i].certified);
+  }
+  // Many candidates drawn are refused by a decision; the copies refuse them before the read
+  // (1,952 reads against 3,858 when written).
+  INFO("store reads with copies " << with.store_reads << ", without " << without.store_reads);
+  CHECK(with.store_reads * 4 < without.store_reads * 3);
+}
