@@ -543,7 +543,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
     }
     sketches->Next();
     state->label_of_id[id] = stored->label;
-    state->shape_of_label[stored->label] = {id, ResidentCopy::of(apply_frame(stored->shape, settings.frame))};
+    state->shape_of_label[stored->label] = {id, ResidentCopy::of(stored->shape, settings.frame)};
     state->next_label = std::max(state->next_label, stored->label + 1);
     labels.push_back(stored->label);
     generation.append_index_vector(sketch->values, stored->shape, settings.frame, vectors);
@@ -639,7 +639,7 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
   // Durable: now make it searchable.
   std::vector<ResidentCopy> copies;
   copies.reserve(winners.size());
-  for (std::size_t i : winners) copies.push_back(ResidentCopy::of(framed[i]));
+  for (std::size_t i : winners) copies.push_back(ResidentCopy::of(framed[i], Frame::absolute));
   std::unique_lock lock(state.labels_mutex);
   if (Status s = current.remove(old_labels); !s.is_ok()) return s;
   if (Status s = current.add(new_labels, index_vectors); !s.is_ok()) return s;

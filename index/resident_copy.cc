@@ -29,46 +29,51 @@ std::size_t resident_copy_bytes() { return bytes_in_use.load(); }
 std::size_t resident_copy_capacity() { return capacity.load(); }
 void set_resident_copy_capacity(std::size_t bytes) { capacity.store(bytes); }
 
-ResidentCopy ResidentCopy::of(const Shape& framed) {
-  const std::size_t parts = framed.parts.size();
-  const bool polygon = framed.kind == ShapeKind::polygon;
+ResidentCopy ResidentCopy::of(const Shape& shape, Frame frame) {
+  const std::size_t parts = shape.parts.size();
+  const bool polygon = shape.kind == ShapeKind::polygon;
   const std::size_t header = 2 + parts * (polygon ? 2 : 1) + kCentreWords + 1;
-  const std::size_t words = header + 2 * framed.vertex_count();
+  const std::size_t words = header + 2 * shape.vertex_count();
   const std::size_t bytes = words * sizeof(std::uint32_t);
   if (bytes_in_use.fetch_add(bytes) + bytes > capacity.load()) {
     bytes_in_use.fetch_sub(bytes);
     return {};
   }
   ResidentCopy copy;
-  copy.words_ = std::make_unique<std::uint32_t[]>(words);
+  copy.words_ = std::make_unique_for_overwrite<std::uint32_t[]>(words);
   copy.word_count_ = words;  // from here on the destructor returns the bytes
   std::uint32_t* out = copy.words_.get();
-  *out++ = static_cast<std::uint32_t>(framed.kind);
+  *out++ = static_cast<std::uint32_t>(shape.kind);
   *out++ = static_cast<std::uint32_t>(parts);
-  for (const Path& part : framed.parts) *out++ = static_cast<std::uint32_t>(part.size());
+  for (const Path& part : shape.parts) *out++ = static_cast<std::uint32_t>(part.size());
   if (polygon) {
-    for (std::size_t i = 0; i < parts; ++i) *out++ = framed.polygon_of_ring[i];
+    for (std::size_t i = 0; i < parts; ++i) *out++ = shape.polygon_of_ring[i];
   }
-  // Relative to the box centre, the floats' rounding is relative to the shape's extent, not to
-  // its distance from the frame's origin.
-  const Box box = bounding_box(framed);
-  const double centre[2] = {box.min_x / 2 + box.max_x / 2, box.min_y / 2 + box.max_y / 2};
-  std::memcpy(out, centre, sizeof(centre));
+  // Relative to (about) the placed box's centre, the floats' rounding is relative to the
+  // shape's extent, not to its distance from the frame's origin.
+  const FramePlacement placement = frame_placement(shape, frame);
+  const Box box = bounding_box(shape);
+  const Point centre = placement.place({box.min_x / 2 + box.max_x / 2, box.min_y / 2 + box.max_y / 2});
+  std::memcpy(out, &centre.x, sizeof(double));
+  std::memcpy(out + 2, &centre.y, sizeof(double));
   out += kCentreWords;
   std::uint32_t* displacement_word = out++;
-  double displacement = 0;
-  for (const Path& part : framed.parts) {
-    for (const Point& p : part) {
-      const float x = static_cast<float>(p.x - centre[0]), y = static_cast<float>(p.y - centre[1]);
+  double largest_squared = 0;
+  for (const Path& part : shape.parts) {
+    for (const Point& given : part) {
+      const Point p = placement.place(given);
+      const float x = static_cast<float>(p.x - centre.x), y = static_cast<float>(p.y - centre.y);
       if (!std::isfinite(x) || !std::isfinite(y)) return {};
       // The same arithmetic as decode(), so the distance is to the vertex it will return.
-      displacement = std::max(displacement, std::hypot(p.x - (centre[0] + x), p.y - (centre[1] + y)));
+      const double dx = p.x - (centre.x + x), dy = p.y - (centre.y + y);
+      largest_squared = std::max(largest_squared, dx * dx + dy * dy);
       *out++ = float_word(x);
       *out++ = float_word(y);
     }
   }
-  // Rounded up twice over: hypot's own error (an ulp or so) and the float conversion.
-  const float bound = std::nextafter(static_cast<float>(displacement * (1 + 1e-9)), std::numeric_limits<float>::infinity());
+  // Rounded up for the squares, their sum and the root (a few ulps), then for the float.
+  const float bound = std::nextafter(static_cast<float>(std::sqrt(largest_squared) * (1 + 1e-9)),
+                                     std::numeric_limits<float>::infinity());
   if (!std::isfinite(bound)) return {};
   *displacement_word = float_word(bound);
   return copy;
@@ -99,14 +104,15 @@ ResidentCopy::Decoded ResidentCopy::decode() const {
     decoded.shape.polygon_of_ring.assign(in, in + parts);
     in += parts;
   }
-  double centre[2];
-  std::memcpy(centre, in, sizeof(centre));
+  Point centre;
+  std::memcpy(&centre.x, in, sizeof(double));
+  std::memcpy(&centre.y, in + 2, sizeof(double));
   in += kCentreWords;
   decoded.displacement = word_float(*in++);
   for (Path& part : decoded.shape.parts) {
     for (Point& p : part) {
-      p.x = centre[0] + word_float(in[0]);
-      p.y = centre[1] + word_float(in[1]);
+      p.x = centre.x + word_float(in[0]);
+      p.y = centre.y + word_float(in[1]);
       in += 2;
     }
   }

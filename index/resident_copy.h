@@ -26,9 +26,10 @@ namespace waymark {
 class ResidentCopy {
  public:
   ResidentCopy() = default;
-  // A copy of `framed` (a shape in its collection's frame); empty when the capacity would be
-  // passed or a coordinate, relative to the shape's box centre, has no finite float. O(vertices).
-  static ResidentCopy of(const Shape& framed);
+  // A copy of `shape` placed in `frame` (each vertex exactly as apply_frame places it, so
+  // without building the placed shape); empty when the capacity would be passed or a placed
+  // coordinate, relative to the placed box centre, has no finite float. O(vertices).
+  static ResidentCopy of(const Shape& shape, Frame frame);
   ResidentCopy(ResidentCopy&& other) noexcept;
   ResidentCopy& operator=(ResidentCopy&& other) noexcept;
   ~ResidentCopy();  // returns its bytes to the capacity

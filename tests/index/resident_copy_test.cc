@@ -40,34 +40,37 @@ long double largest_vertex_distance(const Shape& stored, const Shape& copy) {
 TEST_CASE("AFloatCopyKeepsTheStructureAndBoundsItsDisplacement") {
   SeededRandom random(3);
   // Far from the origin and small: the copy is relative to the box centre, so its rounding
-  // follows the extent (about 10 here), not the offset (1e9).
-  for (const double offset : {0.0, 1e9, -3.5e12}) {
-    INFO("offset " << offset);
-    Shape shape = random_walk(random, 50);
-    shape.parts.push_back(random_walk(random, 7).parts[0]);
-    shape.kind = ShapeKind::polygon;
-    shape.polygon_of_ring = {0, 0};
-    for (Path& part : shape.parts) {
-      for (Point& p : part) p = {p.x + offset, p.y - offset};
+  // follows the extent (about 10 here), not the offset (1e9) — in the given coordinates
+  // (absolute frame) and placed in the unit frame.
+  for (const Frame frame : {Frame::absolute, Frame::unit}) {
+    for (const double offset : {0.0, 1e9, -3.5e12}) {
+      INFO("offset " << offset << ", frame " << static_cast<int>(frame));
+      Shape shape = random_walk(random, 50);
+      shape.parts.push_back(random_walk(random, 7).parts[0]);
+      shape.kind = ShapeKind::polygon;
+      shape.polygon_of_ring = {0, 0};
+      for (Path& part : shape.parts) {
+        for (Point& p : part) p = {p.x + offset, p.y - offset};
+      }
+      const ResidentCopy copy = ResidentCopy::of(shape, frame);
+      REQUIRE_FALSE(copy.empty());
+      const ResidentCopy::Decoded decoded = copy.decode();
+      const Shape placed = apply_frame(shape, frame);  // what queries compare against
+      CHECK(decoded.shape.kind == placed.kind);
+      CHECK(decoded.shape.polygon_of_ring == placed.polygon_of_ring);
+      REQUIRE(decoded.shape.parts.size() == 2);
+      CHECK(decoded.shape.parts[0].size() == 50);
+      CHECK(decoded.shape.parts[1].size() == 7);
+      CHECK(largest_vertex_distance(placed, decoded.shape) <= decoded.displacement);
+      // Binary32 has a 24-bit significand (IEEE 754-2019, table 3.5): rounding moves a
+      // coordinate by at most 2^-24 of its magnitude, here below the extent; the bound is a
+      // float rounded up, so allow it twice that.
+      const Box box = bounding_box(placed);
+      const double extent = std::max(box.width(), box.height());
+      CHECK(decoded.displacement <= 2 * std::sqrt(2.0) * extent * std::ldexp(1.0, -24));
+      CHECK(decoded.displacement > 0);  // random coordinates are not all floats: the bound is not vacuous
+      CHECK(copy.bytes() == (2 + 2 * 2 + 4 + 1 + 2 * 57) * sizeof(std::uint32_t));
     }
-    const ResidentCopy copy = ResidentCopy::of(shape);
-    REQUIRE_FALSE(copy.empty());
-    const ResidentCopy::Decoded decoded = copy.decode();
-    CHECK(decoded.shape.kind == shape.kind);
-    CHECK(decoded.shape.polygon_of_ring == shape.polygon_of_ring);
-    REQUIRE(decoded.shape.parts.size() == 2);
-    CHECK(decoded.shape.parts[0].size() == 50);
-    CHECK(decoded.shape.parts[1].size() == 7);
-    const long double largest = largest_vertex_distance(shape, decoded.shape);
-    CHECK(largest <= decoded.displacement);
-    // Binary32 has a 24-bit significand (IEEE 754-2019, table 3.5): rounding moves a
-    // coordinate by at most 2^-24 of its magnitude, here below 2 · extent; the bound is a
-    // float rounded up, so allow it twice that.
-    const Box box = bounding_box(shape);
-    const double extent = std::max(box.width(), box.height());
-    CHECK(decoded.displacement <= 4 * std::sqrt(2.0) * extent * std::ldexp(1.0, -24));
-    CHECK(decoded.displacement > 0);  // random coordinates are not all floats: the bound is not vacuous
-    CHECK(copy.bytes() == (2 + 2 * 2 + 4 + 1 + 2 * 57) * sizeof(std::uint32_t));
   }
 }
 
@@ -76,17 +79,17 @@ TEST_CASE("AShapeBeyondFloatRangeOrTheCapacityGetsNoCopy") {
   Shape huge;
   huge.kind = ShapeKind::polyline;
   huge.parts = {{{-1e300, 0}, {1e300, 0}}};  // 1e300 from its centre: no finite float
-  CHECK(ResidentCopy::of(huge).empty());
+  CHECK(ResidentCopy::of(huge, Frame::absolute).empty());
 
   SeededRandom random(4);
   const Shape shape = random_walk(random, 64);
   set_resident_copy_capacity(resident_copy_bytes() + 1000);  // room for one 64-vertex copy (540 bytes)
   const std::size_t before = resident_copy_bytes();
   {
-    ResidentCopy first = ResidentCopy::of(shape);
+    ResidentCopy first = ResidentCopy::of(shape, Frame::absolute);
     CHECK_FALSE(first.empty());
     CHECK(resident_copy_bytes() == before + first.bytes());
-    CHECK(ResidentCopy::of(shape).empty());  // would pass the capacity
+    CHECK(ResidentCopy::of(shape, Frame::absolute).empty());  // would pass the capacity
     ResidentCopy moved = std::move(first);
     CHECK(resident_copy_bytes() == before + moved.bytes());
   }
