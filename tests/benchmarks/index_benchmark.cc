@@ -84,19 +84,21 @@ int main(int argc, char** argv) {
     return 1;
   }
 
+  // Ingest time is the upsert() calls' alone: making up the records is the client's work.
   std::vector<ShapeRecord> batch;
-  const auto ingest_start = Clock::now();
+  double ingest_seconds = 0;
   for (std::size_t n = 0; n < shapes; ++n) {
     batch.push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
     if (batch.size() == 1000 || n + 1 == shapes) {
+      const auto upsert_start = Clock::now();
       if (Status s = (*collection)->upsert(batch); !s.is_ok()) {
         std::fprintf(stderr, "%s\n", s.to_string().c_str());
         return 1;
       }
+      ingest_seconds += milliseconds(Clock::now() - upsert_start) / 1000;
       batch.clear();
     }
   }
-  const double ingest_seconds = milliseconds(Clock::now() - ingest_start) / 1000;
 
   ApproximateIndexSettings build_now;
   build_now.minimum_size = 1;
