@@ -356,7 +356,12 @@ Status ApproximateIndex::write_snapshot(std::uint64_t generation, const ByteSink
   return sink(as_bytes(&digest, sizeof digest));
 }
 
-Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, const VectorIndex::Contents& all) {
+ApproximateIndex::Snapshot::Snapshot() = default;
+ApproximateIndex::Snapshot::Snapshot(Snapshot&&) noexcept = default;
+ApproximateIndex::Snapshot& ApproximateIndex::Snapshot::operator=(Snapshot&&) noexcept = default;
+ApproximateIndex::Snapshot::~Snapshot() = default;
+
+Result<ApproximateIndex::Snapshot> ApproximateIndex::read_snapshot(std::istream& in, std::uint64_t generation) const {
   auto damaged = [](const std::string& what) {
     return Status(StatusCode::data_loss, "approximate index snapshot is damaged: " + what);
   };
@@ -405,11 +410,14 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
     return Status(StatusCode::failed_precondition, "snapshot is of another index kind or landmark generation");
   }
   if (count > (body_size - offset) / sizeof(std::int64_t)) return damaged("label count exceeds the file");
-  std::vector<std::int64_t> labels(count);
+  Snapshot snapshot;
+  snapshot.partitions = partitions;
+  std::vector<std::int64_t>& labels = snapshot.labels;
+  labels.resize(count);
   if (!read_exactly(labels.data(), count * sizeof(std::int64_t))) return damaged("truncated labels");
   if (!read_exactly(&faiss_size, 8) || faiss_size != body_size - offset) return damaged("index length");
   BoundedReader reader(in, faiss_size);
-  std::unique_ptr<faiss::Index> index;
+  std::unique_ptr<faiss::Index>& index = snapshot.index;
   try {
     index.reset(faiss::read_index(&reader));
     use_vectorised_storage(*index);
@@ -423,9 +431,13 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
                   "snapshot compares " + std::to_string(index->d) + " values per vector, this collection " +
                       std::to_string(root_weights_.size()) + " (written by an older build)");
   }
+  return snapshot;
+}
+
+Status ApproximateIndex::restore(Snapshot snapshot, const VectorIndex::Contents& all) {
   // Catch up with the store: what it holds beyond the snapshot is fresh; what the snapshot
   // holds beyond the store is a tombstone.
-  const std::unordered_set<std::int64_t> in_snapshot(labels.begin(), labels.end());
+  const std::unordered_set<std::int64_t> in_snapshot(snapshot.labels.begin(), snapshot.labels.end());
   std::unordered_set<std::int64_t> stored;
   std::vector<std::int64_t> fresh_labels;
   std::vector<float> fresh_vectors;
@@ -438,13 +450,13 @@ Status ApproximateIndex::restore(std::istream& in, std::uint64_t generation, con
                          all.vectors.begin() + static_cast<std::ptrdiff_t>((i + 1) * dimension));
   }
   std::size_t tombstones = 0;
-  for (std::int64_t label : labels) tombstones += !stored.contains(label);
+  for (std::int64_t label : snapshot.labels) tombstones += !stored.contains(label);
   std::unique_lock lock(mutex_);
   (void)fresh_.remove(fresh_.copy().labels);
   if (Status s = fresh_.add(fresh_labels, fresh_vectors); !s.is_ok()) return s;
-  built_ = std::move(index);
-  label_of_row_ = std::move(labels);
-  partitions_ = partitions;
+  built_ = std::move(snapshot.index);
+  label_of_row_ = std::move(snapshot.labels);
+  partitions_ = snapshot.partitions;
   tombstones_ = tombstones;
   return Status::ok();
 }

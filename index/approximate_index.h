@@ -93,13 +93,26 @@ class ApproximateIndex {
   // failed_precondition when nothing is built; the sink's first error otherwise.
   using ByteSink = std::function<Status(std::string_view)>;
   Status write_snapshot(std::uint64_t generation, const ByteSink& sink) const;
-  // Replaces the built index with a snapshot written for `generation`, read from `in` (which
-  // must be seekable: the checksum is verified in a first pass, before anything is parsed),
-  // then catches up with `all` (the exhaustive index as stored now): stored vectors the
-  // snapshot lacks become fresh, snapshot vectors no longer stored become tombstones.
-  // data_loss for a damaged file, failed_precondition for one of another kind or generation;
-  // nothing changes then.
-  Status restore(std::istream& in, std::uint64_t generation, const VectorIndex::Contents& all);
+  // A snapshot file read and checked but not in use yet. Restoring takes two steps so that
+  // reading the file (seconds at a million shapes) can overlap the store's scan at an open.
+  struct Snapshot {
+    Snapshot();
+    Snapshot(Snapshot&&) noexcept;
+    Snapshot& operator=(Snapshot&&) noexcept;
+    ~Snapshot();
+    std::unique_ptr<faiss::Index> index;
+    std::vector<std::int64_t> labels;  // FAISS's sequential ids → labels
+    std::size_t partitions = 0;
+  };
+  // Reads a snapshot written for `generation` from `in`, which must be seekable: the checksum
+  // is verified in a first pass, before anything is parsed. data_loss for a damaged file,
+  // failed_precondition for one of another kind, generation or vector length. Reads only what
+  // never changes here, so it may run on another thread while this index is filled.
+  Result<Snapshot> read_snapshot(std::istream& in, std::uint64_t generation) const;
+  // Replaces the built index with `snapshot`, then catches up with `all` (the exhaustive index
+  // as stored now): stored vectors the snapshot lacks become fresh, snapshot vectors no longer
+  // stored become tombstones. O(n).
+  Status restore(Snapshot snapshot, const VectorIndex::Contents& all);
   // Records how the last open went (ApproximateIndexStatus::snapshot).
   void set_snapshot_note(std::string note);
   std::int64_t largest_label() const;  // in the built index; 0 when none

@@ -7,6 +7,7 @@
 #include <cstring>
 #include <filesystem>
 #include <fstream>
+#include <future>
 #include <optional>
 #include <system_error>
 #include <thread>
@@ -316,13 +317,34 @@ Status Collection::State::build_approximate_index_if_due() {
 
 namespace {
 
-// Loads the approximate index's snapshot into a freshly opened generation, or says why not.
-// `stored`: what the open just read into the exhaustive index (not copied out of it again).
-void restore_approximate_index(Collection::State& state, const VectorIndex::Contents& stored) {
+// The approximate index's snapshot as read from its file; nullopt when there is none yet (the
+// builder makes one when due).
+using SnapshotRead = std::optional<Result<ApproximateIndex::Snapshot>>;
+
+// Reads the snapshot of a freshly opened generation on a thread of its own, so that the file's
+// reading overlaps the store's scan (at 1M shapes each takes seconds); on this thread when no
+// other can be had.
+std::future<SnapshotRead> read_snapshot_meanwhile(const Collection::State& state) {
+  auto read = [path = state.approximate_snapshot_path(), approximate = state.current->approximate.get(),
+               number = state.current->number()]() -> SnapshotRead {
+    std::ifstream in(path, std::ios::binary);
+    if (!in) return std::nullopt;
+    return approximate->read_snapshot(in, number);
+  };
+  try {
+    return std::async(std::launch::async, read);
+  } catch (const std::system_error&) {
+    return std::async(std::launch::deferred, read);
+  }
+}
+
+// Puts the snapshot in use, or says why not. `stored`: what the open just read into the
+// exhaustive index (not copied out of it again).
+void restore_approximate_index(Collection::State& state, SnapshotRead read, const VectorIndex::Contents& stored) {
+  if (!read) return;
   Generation& generation = *state.current;
-  std::ifstream in(state.approximate_snapshot_path(), std::ios::binary);
-  if (!in) return;  // none yet: the builder makes one when due
-  const Status restored = generation.approximate->restore(in, generation.number(), stored);
+  const Status restored =
+      *read ? generation.approximate->restore(std::move(**read), stored) : read->status();
   generation.approximate->set_snapshot_note(restored.is_ok() ? "loaded" : "rebuilding: " + restored.message());
   // Labels are never reused, also not those that only the snapshot still remembers.
   state.next_label = std::max(state.next_label, generation.approximate->largest_label() + 1);
@@ -494,6 +516,10 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
     return s;
   }
 
+  state->directory = directory;
+  std::future<SnapshotRead> snapshot_read;
+  if (generation.approximate) snapshot_read = read_snapshot_meanwhile(*state);
+
   // Rebuild the derived state: records and this generation's sketches, both in id order.
   // The id maps' buckets are reserved from the store's key estimate (records and sketches alike,
   // so about twice the shapes): growing a million-entry map rehashes every node each time. Only
@@ -557,8 +583,7 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   // The exhaustive index only: the approximate one is restored from its snapshot (or built)
   // from this index, so copying every vector into its fresh part here would be undone at once.
   if (Status s = generation.index.add(labels, vectors); !s.is_ok()) return s;
-  state->directory = directory;
-  if (generation.approximate) restore_approximate_index(*state, {std::move(labels), std::move(vectors)});
+  if (generation.approximate) restore_approximate_index(*state, snapshot_read.get(), {std::move(labels), std::move(vectors)});
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 

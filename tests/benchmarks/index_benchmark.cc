@@ -116,14 +116,24 @@ int main(int argc, char** argv) {
   }
   const double build_seconds = milliseconds(Clock::now() - build_start) / 1000;
   // A restart as waymarkd does it: the approximate index comes from the snapshot the build wrote.
-  double reopen_with_snapshot_seconds = 0;
+  // Then two more, without and with the float copies, for what making them costs at a restart.
+  double reopen_with_snapshot_seconds = 0, again_without_copies = 0, again_with_copies = 0;
   if (*kind != IndexKind::exhaustive) {
-    reopen_with_snapshot_seconds = reopen();
-    if (!collection || (*collection)->statistics().approximate.snapshot != "loaded") {
-      std::fprintf(stderr, "reopen did not load the snapshot: %s\n",
-                   collection ? (*collection)->statistics().approximate.snapshot.c_str() : collection.status().to_string().c_str());
-      return 1;
-    }
+    auto restart = [&](std::size_t copy_capacity) {
+      set_resident_copy_capacity(copy_capacity);
+      const double seconds = reopen();
+      if (!collection || (*collection)->statistics().approximate.snapshot != "loaded") {
+        std::fprintf(stderr, "reopen did not load the snapshot: %s\n",
+                     collection ? (*collection)->statistics().approximate.snapshot.c_str()
+                                : collection.status().to_string().c_str());
+        std::exit(1);
+      }
+      return seconds;
+    };
+    const std::size_t copy_capacity = resident_copy_capacity();
+    reopen_with_snapshot_seconds = restart(copy_capacity);
+    again_without_copies = restart(0);
+    again_with_copies = restart(copy_capacity);
   }
 
   const CollectionStatistics statistics = (*collection)->statistics();
@@ -134,8 +144,9 @@ int main(int argc, char** argv) {
   std::printf("reopen (reads every record and sketch, rebuilds the exhaustive index): %.2f s\n", reopen_seconds);
   if (*kind != IndexKind::exhaustive) {
     std::printf("approximate index build after reopen: %.2f s\n", build_seconds);
-    std::printf("restart with the approximate index's snapshot (open, load, catch up): %.2f s\n",
-                reopen_with_snapshot_seconds);
+    std::printf("restart with the approximate index's snapshot (open, load, catch up): %.2f s; again without / with "
+                "float copies: %.2f / %.2f s\n",
+                reopen_with_snapshot_seconds, again_without_copies, again_with_copies);
   }
   const double memory_bytes = static_cast<double>(statistics.index_bytes + statistics.resident_copy_bytes) / shapes;
   std::printf("per shape: %.0f bytes in memory (indexes and id maps %.0f, float copies %.0f), %.0f bytes on disk; raw "

@@ -1,9 +1,10 @@
 // Fuzz target: reading an approximate-index snapshot file (header, checksum, FAISS payload).
-// A damaged snapshot must be refused with a Status, never crash: restore() is what a restart
-// runs on whatever the disk holds.
+// A damaged snapshot must be refused with a Status, never crash: read_snapshot() and restore()
+// are what a restart runs on whatever the disk holds.
 #include <cstdint>
 #include <sstream>
 #include <string>
+#include <utility>
 
 #include "index/approximate_index.h"
 
@@ -16,6 +17,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   waymark::VectorIndex::Contents stored;
   stored.labels = {1, 2, 3};
   stored.vectors = {0, 0, 0, 0, 1, 1, 1, 1, 2, 2, 2, 2};
-  (void)index.restore(bytes, 1, stored);
+  waymark::Result<waymark::ApproximateIndex::Snapshot> read = index.read_snapshot(bytes, 1);
+  if (read) (void)index.restore(std::move(*read), stored);
   return 0;
 }

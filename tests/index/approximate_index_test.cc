@@ -290,13 +290,15 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
   }).is_ok());
   ApproximateIndex same_length(IndexKind::graph, {1.0, 1.0, 1.0}, 4, settings);
   std::istringstream in(bytes);
-  CHECK(same_length.restore(in, 7, all.copy()).is_ok());
+  Result<ApproximateIndex::Snapshot> read = same_length.read_snapshot(in, 7);
+  REQUIRE(read.is_ok());
+  CHECK(same_length.restore(std::move(*read), all.copy()).is_ok());
   CHECK(same_length.ready());
   ApproximateIndex longer(IndexKind::graph, {1.0, 1.0, 1.0, 1.0}, 4, settings);
   std::istringstream again(bytes);
-  const Status refused = longer.restore(again, 7, all.copy());
-  CHECK(refused.code() == StatusCode::failed_precondition);
-  CHECK(refused.message() == "snapshot compares 3 values per vector, this collection 4 (written by an older build)");
+  const Result<ApproximateIndex::Snapshot> refused = longer.read_snapshot(again, 7);
+  CHECK(refused.status().code() == StatusCode::failed_precondition);
+  CHECK(refused.status().message() == "snapshot compares 3 values per vector, this collection 4 (written by an older build)");
   CHECK_FALSE(longer.ready());
 }
 
