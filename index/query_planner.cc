@@ -360,11 +360,10 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
 // Walks the exhaustive index in lower-bound order (L∞ over the index-vector values that bound
 // `metric`: Generation::compared_dimensions), in rounds that grow ×4 from `first_fetch`,
 // handing each stored candidate (not excluded, passing the filter, not refused at
-// `threshold()` by its float copy) to `visit`. Before each
-// candidate and after each round `enough(unseen_bound)` says whether to stop, where
-// unseen_bound is a lower bound on the exact distance of every shape not drawn yet. Returns
-// whether every stored shape was drawn or ruled out by the bound (so the caller's answer is
-// complete).
+// `threshold()` by its float copy) to `visit`. Before each candidate and after each round
+// `enough(unseen_bound)` says whether to stop, where unseen_bound is a lower bound on the
+// exact distance of every shape not drawn yet. Returns whether every stored shape was drawn
+// or ruled out by the bound (so the caller's answer is complete).
 template <typename Threshold, typename Visit, typename Enough>
 Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery& query,
                              Metric metric, std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,

@@ -50,20 +50,25 @@ ResidentCopy ResidentCopy::of(const Shape& shape, Frame frame) {
     for (std::size_t i = 0; i < parts; ++i) *out++ = shape.polygon_of_ring[i];
   }
   // Relative to (about) the placed box's centre, the floats' rounding is relative to the
-  // shape's extent, not to its distance from the frame's origin.
+  // shape's extent, not to its distance from the frame's origin. A placement other than the
+  // absolute frame's already puts that centre at the origin.
   const FramePlacement placement = frame_placement(shape, frame);
-  const Box box = bounding_box(shape);
-  const Point centre = placement.place({box.min_x / 2 + box.max_x / 2, box.min_y / 2 + box.max_y / 2});
+  Point centre{0, 0};
+  if (frame == Frame::absolute) {
+    const Box box = bounding_box(shape);
+    centre = {box.min_x / 2 + box.max_x / 2, box.min_y / 2 + box.max_y / 2};
+  }
   std::memcpy(out, &centre.x, sizeof(double));
   std::memcpy(out + 2, &centre.y, sizeof(double));
   out += kCentreWords;
   std::uint32_t* displacement_word = out++;
   double largest_squared = 0;
+  bool finite = true;  // checked once after the loop, which then has no exit
   for (const Path& part : shape.parts) {
     for (const Point& given : part) {
       const Point p = placement.place(given);
       const float x = static_cast<float>(p.x - centre.x), y = static_cast<float>(p.y - centre.y);
-      if (!std::isfinite(x) || !std::isfinite(y)) return {};
+      finite = finite && std::isfinite(x) && std::isfinite(y);
       // The same arithmetic as decode(), so the distance is to the vertex it will return.
       const double dx = p.x - (centre.x + x), dy = p.y - (centre.y + y);
       largest_squared = std::max(largest_squared, dx * dx + dy * dy);
@@ -71,6 +76,7 @@ ResidentCopy ResidentCopy::of(const Shape& shape, Frame frame) {
       *out++ = float_word(y);
     }
   }
+  if (!finite) return {};
   // Rounded up for the squares, their sum and the root (a few ulps), then for the float.
   const float bound = std::nextafter(static_cast<float>(std::sqrt(largest_squared) * (1 + 1e-9)),
                                      std::numeric_limits<float>::infinity());
