@@ -71,6 +71,10 @@ struct StoredShape {
   // holds it; empty from decode_record, filled by State::load.
   std::vector<float> raw;
   std::string metadata;
+  // Set by a query when the shape's float copy passed the decision procedure (at a threshold a
+  // little wider than the query's): deciding again on these doubles would almost surely pass
+  // too, so the query goes straight to the exact value.
+  bool passed_copy_decision = false;
 };
 
 struct Collection::State {

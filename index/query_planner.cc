@@ -144,7 +144,8 @@ std::optional<double> distance_within(const PreparedQuery& query, const StoredSh
   double distance = 0;
   if (metric == Metric::hausdorff) {
     const PreparedShape candidate(stored.shape);
-    if (threshold < kInfinity && !hausdorff_at_most(query.prepared, candidate, threshold)) {
+    if (threshold < kInfinity && !stored.passed_copy_decision &&
+        !hausdorff_at_most(query.prepared, candidate, threshold)) {
       ++stats.pruned_by_decision;
       return std::nullopt;
     }
@@ -349,6 +350,7 @@ Result<std::optional<StoredShape>> draw_candidate(const Collection::State& state
     if (candidate.status().code() == StatusCode::not_found) return std::optional<StoredShape>();
     return candidate.status();
   }
+  candidate->passed_copy_decision = copy.has_value();
   ++stats.candidates_fetched;
   if (!filter.accepts(candidate->metadata)) {
     ++stats.filtered_out;
