@@ -11,7 +11,7 @@
 // at 100k shapes), exact mode on the first EXACT_QUERIES (0 leaves only fast mode, e.g. to
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
 // and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
-// row each (0: the default, 40·k), to show what recall each buys.
+// row each (0: the default, 40·k; 100·k for a partitioned index), to show what recall each buys.
 #include <algorithm>
 #include <chrono>
 #include <cstdio>

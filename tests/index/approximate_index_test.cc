@@ -308,7 +308,7 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
 // index, with default settings, must still find them: it scores the approximate index's
 // candidates by the Fréchet bound, curve ends included, and by default asks for enough of
 // them (index/query_planner.cc, kFastCandidatesPerHit). Measured with this seed: graph,
-// Fréchet 0.72 at 20·k candidates, 0.97 at the default 40·k (seeded, invented shapes).
+// Fréchet 0.72 at 20·k candidates, 0.97 at its default 40·k (seeded, invented shapes).
 TEST_CASE("FastModeFindsFrechetNeighboursOfRingsWithShiftedStarts") {
   SeededRandom random(21);
   std::vector<Shape> figures;
