@@ -1,5 +1,6 @@
 #include "index/resident_copy.h"
 
+#include <algorithm>
 #include <atomic>
 #include <bit>
 #include <cmath>
@@ -19,6 +20,7 @@ std::atomic<std::size_t> capacity{std::size_t{1} << 30};
 // (polygon kind only), the box centre as two doubles (4 words), the displacement as a float,
 // then x and y of every vertex as floats, relative to the centre.
 constexpr std::size_t kCentreWords = 4;
+constexpr double kLargestFloat = std::numeric_limits<float>::max();
 
 std::uint32_t float_word(float value) { return std::bit_cast<std::uint32_t>(value); }
 float word_float(std::uint32_t word) { return std::bit_cast<float>(word); }
@@ -67,8 +69,11 @@ ResidentCopy ResidentCopy::of(const Shape& shape, Frame frame) {
   for (const Path& part : shape.parts) {
     for (const Point& given : part) {
       const Point p = placement.place(given);
-      const float x = static_cast<float>(p.x - centre.x), y = static_cast<float>(p.y - centre.y);
-      finite = finite && std::isfinite(x) && std::isfinite(y);
+      // Clamped before the conversion, which is undefined beyond the float range.
+      const double relative_x = p.x - centre.x, relative_y = p.y - centre.y;
+      finite = finite && std::fabs(relative_x) <= kLargestFloat && std::fabs(relative_y) <= kLargestFloat;
+      const float x = static_cast<float>(std::clamp(relative_x, -kLargestFloat, kLargestFloat));
+      const float y = static_cast<float>(std::clamp(relative_y, -kLargestFloat, kLargestFloat));
       // The same arithmetic as decode(), so the distance is to the vertex it will return.
       const double dx = p.x - (centre.x + x), dy = p.y - (centre.y + y);
       largest_squared = std::max(largest_squared, dx * dx + dy * dy);
@@ -78,8 +83,9 @@ ResidentCopy ResidentCopy::of(const Shape& shape, Frame frame) {
   }
   if (!finite) return {};
   // Rounded up for the squares, their sum and the root (a few ulps), then for the float.
-  const float bound = std::nextafter(static_cast<float>(std::sqrt(largest_squared) * (1 + 1e-9)),
-                                     std::numeric_limits<float>::infinity());
+  const float bound =
+      std::nextafter(static_cast<float>(std::min(std::sqrt(largest_squared) * (1 + 1e-9), kLargestFloat)),
+                     std::numeric_limits<float>::infinity());
   if (!std::isfinite(bound)) return {};
   *displacement_word = float_word(bound);
   return copy;
