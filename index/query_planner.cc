@@ -27,8 +27,8 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // synthetic 64-vertex shapes, 2026-12-03 (`index_benchmark SHAPES 64 64 QUERIES KIND 0 EXACT
 // 0 0,1000`; 200k: 400 near-copies of each figure, 1M: 2,000):
 //   graph        200k: 40·k 1.000, 0.999 (3.2, 4.1 ms); 100·k the same recall, +30 % time
-//                1M:   40·k 0.863, 0.708 (4.5–5.0, 5.0–6.3 ms); 100·k 0.988, 0.947
-//                      (6.9–7.7, 7.5–10.2 ms; p99 11.5, 16.0: over the 10 ms target)
+//                1M:   40·k 0.863, 0.708 (4.5–5.5, 5.0–6.3 ms); 100·k 0.988, 0.947
+//                      (6.9–8.4, 7.5–10.3 ms; p99 11.5–13.2, 10.6–16.7: over the 10 ms target)
 //   partitioned  200k: 40·k 1.000, 1.000 (2.1–2.4, 3.2–3.5 ms); 100·k the same (2.8–2.9, 4.0–4.1)
 //                1M:   40·k 0.856, 0.719 (3.7, 4.5 ms); 100·k 0.989, 0.946 (4.3, 5.7 ms; p99 6.5, 7.6)
 // A graph's candidates cost more the more are asked for (HNSW's search list grows with them);
