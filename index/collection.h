@@ -26,8 +26,7 @@
 // an estimate, certified only when every shape was drawn.) Both modes draw candidates in
 // growing rounds until the answer is certified or the budget is spent; they differ only in the
 // default budget (exact: every stored shape; fast: 100·k on partitioned collections, 40·k on
-// the others). An uncertified answer can miss
-// closer shapes.
+// the others). An uncertified answer can miss closer shapes.
 #pragma once
 
 #include <atomic>
