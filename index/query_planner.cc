@@ -40,6 +40,11 @@ constexpr std::size_t kPartitionedFastCandidatesPerHit = 100;
 
 const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", "sketch"};
 
+// The largest coordinate magnitude in `box`.
+double largest_magnitude(const Box& box) {
+  return std::max({std::fabs(box.min_x), std::fabs(box.max_x), std::fabs(box.min_y), std::fabs(box.max_y)});
+}
+
 // The query, framed and prepared once for every candidate, in one landmark generation: the
 // query holds that generation to its end, so it never compares sketches of two.
 struct PreparedQuery {
@@ -48,6 +53,7 @@ struct PreparedQuery {
     generation->append_index_vector(generation->sketcher.sketch(framed), framed, Frame::absolute, raw);
     if (Result<Path> path = curve_of(framed)) curve = std::move(*path);
     for (float value : raw) largest_raw = std::max<double>(largest_raw, std::fabs(value));
+    magnitude = largest_magnitude(prepared.box);
   }
   // The leading values of an index vector that are landmark distances.
   std::span<const float> landmark_distances(std::span<const float> index_vector) const {
@@ -66,6 +72,7 @@ struct PreparedQuery {
   PreparedShape prepared;
   std::vector<float> raw;  // the index vector (Generation): what the indexes are searched with
   double largest_raw = 0;  // largest magnitude in raw
+  double magnitude = 0;    // largest coordinate magnitude of the framed query
   std::optional<Path> curve;  // when the query is a single curve
 };
 
@@ -311,20 +318,20 @@ bool copies_can_refuse(Metric metric) { return metric == Metric::hausdorff || me
 // without this margin. Pruning loses nothing measurable at it.
 constexpr double kCopyDecisionMargin = 1e-6;
 
-double largest_magnitude(const Box& box) {
-  return std::max({std::fabs(box.min_x), std::fabs(box.max_x), std::fabs(box.min_y), std::fabs(box.max_y)});
-}
-
 // Whether the shape's float copy (index/resident_copy.h) proves it farther than `threshold`
 // under `metric` (one that copies_can_refuse): the decision procedure at threshold + the
 // copy's displacement + the margin above.
 bool refused_by_copy(const PreparedQuery& query, const ResidentCopy::Decoded& copy, Metric metric, double threshold) {
-  const double magnitude =
-      std::max(largest_magnitude(query.prepared.box), largest_magnitude(bounding_box(copy.shape)));
-  const double widened = threshold + copy.displacement + kCopyDecisionMargin * magnitude;
-  if (metric == Metric::hausdorff) return !hausdorff_at_most(query.prepared, PreparedShape(copy.shape), widened);
+  auto widened = [&](const Box& copy_box) {
+    const double magnitude = std::max(query.magnitude, largest_magnitude(copy_box));
+    return threshold + copy.displacement + kCopyDecisionMargin * magnitude;
+  };
+  if (metric == Metric::hausdorff) {
+    const PreparedShape prepared(copy.shape);  // its box too: no second pass over the copy
+    return !hausdorff_at_most(query.prepared, prepared, widened(prepared.box));
+  }
   Result<Path> curve = curve_of(copy.shape);
-  return curve && !FrechetSearch::start(*query.curve, *curve, widened);
+  return curve && !FrechetSearch::start(*query.curve, *curve, widened(bounding_box(copy.shape)));
 }
 
 // The stored shape under `label`, framed, when it is still stored under that label, can be
