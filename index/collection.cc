@@ -34,9 +34,10 @@ constexpr const char* kLastWriteKey = "last_write";  // u64 milliseconds since t
 
 void put_u64(std::string& out, std::uint64_t value) { out.append(reinterpret_cast<const char*>(&value), sizeof value); }
 
-std::string encode_record(std::int64_t label, const Shape& shape, const std::string& metadata) {
-  const std::string geometry = encode_shape(shape);
+// `geometry`: encode_shape of the shape as given.
+std::string encode_record(std::int64_t label, const std::string& geometry, const std::string& metadata) {
   std::string out;
+  out.reserve(24 + geometry.size() + metadata.size());
   put_u64(out, static_cast<std::uint64_t>(label));
   put_u64(out, geometry.size());
   out += geometry;
@@ -602,86 +603,172 @@ Status Collection::check(const ShapeRecord& record) const {
   return validate(record.shape, settings.limits);
 }
 
+// One upsert() call's batch, made ready for the store outside every lock: each id's last
+// record framed, sketched in the generation that was current then, with its index vector,
+// encoded geometry and float copy. Committed by whichever call leads the group it joins.
+struct Collection::State::PreparedUpsert {
+  std::span<const ShapeRecord> batch;
+  std::vector<std::size_t> winners;  // batch positions of each id's last record, in order
+  // Per winner:
+  std::vector<Shape> framed;
+  std::vector<std::string> geometry;  // encode_shape of the record's shape as given
+  std::vector<ResidentCopy> copies;
+  std::shared_ptr<Generation> generation;   // the sketches' and index vectors' generation
+  std::vector<float> sketches, index_vectors;
+  // Set by the group's leader under commit_mutex.
+  Status result;
+  bool done = false;
+
+  void sketch_in(std::shared_ptr<Generation> in) {
+    generation = std::move(in);
+    sketches.assign(framed.size() * generation->landmark_count(), 0.0f);
+    sketch_all(generation->sketcher, framed, sketches);
+    index_vectors.clear();
+    index_vectors.reserve(framed.size() * generation->dimension());
+    for (std::size_t w = 0; w < framed.size(); ++w) {
+      generation->append_index_vector(sketch_of(w), framed[w], Frame::absolute, index_vectors);
+    }
+  }
+  std::span<const float> sketch_of(std::size_t w) const {
+    const std::size_t dimension = generation->landmark_count();
+    return std::span<const float>(sketches).subspan(w * dimension, dimension);
+  }
+};
+
 Status Collection::upsert(std::span<const ShapeRecord> batch) {
   State& state = *state_;
+  State::PreparedUpsert upsert;
+  upsert.batch = batch;
   // Check everything before writing anything.
-  std::vector<Shape> framed;
-  framed.reserve(batch.size());
   for (std::size_t i = 0; i < batch.size(); ++i) {
     if (Status s = check(batch[i]); !s.is_ok()) {
       return Status(s.code(), "record " + std::to_string(i) + " (id '" + batch[i].id.substr(0, 64) + "'): " + s.message(),
                     s.where());
     }
-    framed.push_back(apply_frame(batch[i].shape, state.settings.frame));
   }
-
   // A later record with the same id wins, so only each id's last record is stored at all.
   std::unordered_map<std::string_view, std::size_t> last_of_id;
   for (std::size_t i = 0; i < batch.size(); ++i) last_of_id[batch[i].id] = i;
-  std::vector<std::size_t> winners;
   for (std::size_t i = 0; i < batch.size(); ++i) {
-    if (last_of_id[batch[i].id] == i) winners.push_back(i);
+    if (last_of_id[batch[i].id] != i) continue;
+    upsert.winners.push_back(i);
+    upsert.framed.push_back(apply_frame(batch[i].shape, state.settings.frame));
+    upsert.geometry.push_back(encode_shape(batch[i].shape));
+    upsert.copies.push_back(ResidentCopy::of(upsert.framed.back(), Frame::absolute));
   }
+  // The CPU work of a batch is done here, outside the write lock, so that it overlaps another
+  // call's synced write; commit() re-sketches should a refit have switched generations since.
+  upsert.sketch_in(state.current_generation());
 
-  std::lock_guard write_lock(state.write_mutex);
+  // Group commit: the first caller to find no commit in progress leads; it commits every
+  // batch queued by then (its own included) in one synced write, so concurrent callers share
+  // a sync. Each batch is still all or nothing: the group's write is one RocksDB WriteBatch.
+  std::unique_lock queue_lock(state.commit_mutex);
+  state.commit_queue.push_back(&upsert);
+  while (!upsert.done) {
+    if (state.committing) {
+      state.commit_turn.wait(queue_lock);
+      continue;
+    }
+    std::vector<State::PreparedUpsert*> group;
+    group.swap(state.commit_queue);
+    state.committing = true;
+    queue_lock.unlock();
+    const std::vector<Status> results = state.commit(group);
+    queue_lock.lock();
+    for (std::size_t g = 0; g < group.size(); ++g) {
+      group[g]->result = results[g];
+      group[g]->done = true;
+    }
+    state.committing = false;
+    state.commit_turn.notify_all();
+  }
+  return upsert.result;
+}
+
+std::vector<Status> Collection::State::commit(std::span<PreparedUpsert* const> group) {
+  std::lock_guard write_lock(write_mutex);
   // Under the write lock neither generation can change: a refit switches under it too.
-  Generation& current = *state.current;
-  Generation* pending = state.pending.get();
-  std::vector<std::int64_t> old_labels, new_labels, pending_labels;
-  std::int64_t next_label;
+  Generation* pending_generation = pending.get();
+  struct Labels {
+    std::vector<std::int64_t> old_labels, new_labels, pending_labels;
+    std::vector<float> pending_vectors;
+  };
+  std::vector<Labels> labels(group.size());
+  std::int64_t label;
   {
-    std::shared_lock lock(state.labels_mutex);
-    next_label = state.next_label;
-    for (std::size_t i : winners) {
-      if (auto found = state.label_of_id.find(batch[i].id); found != state.label_of_id.end()) {
-        old_labels.push_back(found->second);
+    std::shared_lock lock(labels_mutex);
+    label = next_label;
+    // An id written by an earlier batch of the group replaces that batch's label, not the
+    // stored one: the batches are applied in order.
+    std::unordered_map<std::string_view, std::int64_t> labelled_in_group;
+    for (std::size_t g = 0; g < group.size(); ++g) {
+      for (std::size_t i : group[g]->winners) {
+        const std::string& id = group[g]->batch[i].id;
+        if (auto earlier = labelled_in_group.find(id); earlier != labelled_in_group.end()) {
+          labels[g].old_labels.push_back(earlier->second);
+        } else if (auto found = label_of_id.find(id); found != label_of_id.end()) {
+          labels[g].old_labels.push_back(found->second);
+        }
+        labels[g].new_labels.push_back(label);
+        labelled_in_group[id] = label++;
       }
     }
   }
   rocksdb::WriteBatch write;
-  const std::size_t dimension = current.landmark_count();
-  std::vector<float> sketches(framed.size() * dimension), index_vectors, pending_vectors;
-  sketch_all(current.sketcher, framed, sketches);
-  index_vectors.reserve(winners.size() * current.dimension());
-  for (std::size_t i : winners) {
-    const std::string key = shape_key(batch[i].id);
-    new_labels.push_back(next_label++);
-    write.Put(key, encode_record(new_labels.back(), batch[i].shape, batch[i].metadata));
-    const std::span<const float> sketch(sketches.data() + i * dimension, dimension);
-    write.Put(sketch_key(current.number(), batch[i].id), encode_sketch(new_labels.back(), sketch));
-    current.append_index_vector(sketch, framed[i], Frame::absolute, index_vectors);
-    // A running refit has passed this id already: sketch it into the next generation too.
-    if (pending && key <= state.pending_covered_up_to) {
-      std::vector<float> next_sketch = pending->sketcher.sketch(framed[i]);
-      write.Put(sketch_key(pending->number(), batch[i].id), encode_sketch(new_labels.back(), next_sketch));
-      pending->append_index_vector(next_sketch, framed[i], Frame::absolute, pending_vectors);
-      pending_labels.push_back(new_labels.back());
+  for (std::size_t g = 0; g < group.size(); ++g) {
+    PreparedUpsert& upsert = *group[g];
+    if (upsert.generation != current) upsert.sketch_in(current);  // a refit switched meanwhile
+    for (std::size_t w = 0; w < upsert.winners.size(); ++w) {
+      const ShapeRecord& record = upsert.batch[upsert.winners[w]];
+      const std::int64_t new_label = labels[g].new_labels[w];
+      const std::string key = shape_key(record.id);
+      write.Put(key, encode_record(new_label, upsert.geometry[w], record.metadata));
+      write.Put(sketch_key(current->number(), record.id), encode_sketch(new_label, upsert.sketch_of(w)));
+      // A running refit has passed this id already: sketch it into the next generation too.
+      if (pending_generation && key <= pending_covered_up_to) {
+        std::vector<float> next_sketch = pending_generation->sketcher.sketch(upsert.framed[w]);
+        write.Put(sketch_key(pending_generation->number(), record.id), encode_sketch(new_label, next_sketch));
+        pending_generation->append_index_vector(next_sketch, upsert.framed[w], Frame::absolute,
+                                                labels[g].pending_vectors);
+        labels[g].pending_labels.push_back(new_label);
+      }
     }
   }
   write.Put(kLastWriteKey, now_as_record());
-  if (Status s = from_rocksdb(state.database->Write(durable_write(), &write), "writing a batch"); !s.is_ok()) return s;
+  const std::string doing = group.size() == 1 ? "writing a batch"
+                                              : "writing " + std::to_string(group.size()) + " concurrent batches";
+  if (Status s = from_rocksdb(database->Write(durable_write(), &write), doing); !s.is_ok()) {
+    return std::vector<Status>(group.size(), s);
+  }
 
-  // Durable: now make it searchable.
-  std::vector<ResidentCopy> copies;
-  copies.reserve(winners.size());
-  for (std::size_t i : winners) copies.push_back(ResidentCopy::of(framed[i], Frame::absolute));
-  std::unique_lock lock(state.labels_mutex);
-  if (Status s = current.remove(old_labels); !s.is_ok()) return s;
-  if (Status s = current.add(new_labels, index_vectors); !s.is_ok()) return s;
-  if (pending) {
-    if (Status s = pending->remove(old_labels); !s.is_ok()) return s;
-    if (Status s = pending->add(pending_labels, pending_vectors); !s.is_ok()) return s;
+  // Durable: now make it searchable, batch by batch in order.
+  std::vector<Status> results(group.size(), Status::ok());
+  std::unique_lock lock(labels_mutex);
+  for (std::size_t g = 0; g < group.size(); ++g) {
+    PreparedUpsert& upsert = *group[g];
+    Status applied = current->remove(labels[g].old_labels);
+    if (applied.is_ok()) applied = current->add(labels[g].new_labels, upsert.index_vectors);
+    if (applied.is_ok() && pending_generation) applied = pending_generation->remove(labels[g].old_labels);
+    if (applied.is_ok() && pending_generation) {
+      applied = pending_generation->add(labels[g].pending_labels, labels[g].pending_vectors);
+    }
+    if (!applied.is_ok()) {
+      // Stored but not indexed: the next open rebuilds the indexes from the store.
+      std::fill(results.begin() + static_cast<std::ptrdiff_t>(g), results.end(), applied);
+      break;
+    }
+    for (std::int64_t old : labels[g].old_labels) shape_of_label.erase(old);
+    for (std::size_t w = 0; w < upsert.winners.size(); ++w) {
+      const std::string& id = upsert.batch[upsert.winners[w]].id;
+      label_of_id[id] = labels[g].new_labels[w];
+      shape_of_label[labels[g].new_labels[w]] = {id, std::move(upsert.copies[w])};
+    }
   }
-  for (std::int64_t old : old_labels) state.shape_of_label.erase(old);
-  for (std::size_t w = 0; w < winners.size(); ++w) {
-    const std::string& id = batch[winners[w]].id;
-    state.label_of_id[id] = new_labels[w];
-    state.shape_of_label[new_labels[w]] = {id, std::move(copies[w])};
-  }
-  state.next_label = next_label;
+  next_label = label;
   lock.unlock();
-  state.wake_builder();  // an approximate index may be due
-  return Status::ok();
+  wake_builder();  // an approximate index may be due
+  return results;
 }
 
 Status Collection::remove(std::span<const std::string> ids) {

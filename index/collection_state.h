@@ -97,6 +97,16 @@ struct Collection::State {
   std::int64_t next_label = 1;
 
   std::mutex write_mutex;  // writes are serialised; also guards the refit fields below
+  // Group commit of concurrent upserts (collection.cc): batches wait in commit_queue until a
+  // caller that finds no commit in progress commits them all.
+  struct PreparedUpsert;
+  std::mutex commit_mutex;
+  std::condition_variable commit_turn;
+  std::vector<PreparedUpsert*> commit_queue;  // guarded by commit_mutex
+  bool committing = false;                    // guarded by commit_mutex
+  // Writes the group in one synced WriteBatch under write_mutex, then applies each batch to
+  // the indexes and maps in order; one status per batch (a failed write fails them all).
+  std::vector<Status> commit(std::span<PreparedUpsert* const> group);
   // While a refit runs: the generation being built, and the last shape key it has sketched
   // (writes to ids at or before it sketch into `pending` themselves, later ones are left to
   // the refit).

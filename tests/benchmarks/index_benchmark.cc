@@ -2,7 +2,7 @@
 // mode and a full exact scan, side by side in one run on the same queries.
 // Usage: index_benchmark [SHAPES=100000] [VERTICES=64] [LANDMARKS=64] [QUERIES=50]
 //                        [INDEX=exhaustive|graph|partitioned] [SCANNED_QUERIES=QUERIES]
-//                        [EXACT_QUERIES=QUERIES] [REFIT=0] [FAST_BUDGETS=0]
+//                        [EXACT_QUERIES=QUERIES] [REFIT=0] [FAST_BUDGETS=0] [WRITERS=1]
 // Prints a table of medians and p99s (milliseconds) with the mean candidates fetched from the
 // store, refused by the decision procedure and given an exact value per query; the exact-mode /
 // full-scan ratio, fast-mode recall@10 against the full scan and against certified exact-mode
@@ -12,13 +12,17 @@
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
 // and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
 // row each (0: the default, 40·k; 100·k for a partitioned index), to show what recall each buys.
+// WRITERS threads call upsert() at once, each with its own batches, as concurrent clients of a
+// server do (concurrent batches share a synced write: Collection::upsert).
 #include <algorithm>
+#include <atomic>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <filesystem>
 #include <limits>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include "index/collection.h"
@@ -64,8 +68,9 @@ int main(int argc, char** argv) {
     fast_budgets.push_back(budget);
     next = *end == ',' ? end + 1 : end;
   }
-  if (!kind || queries == 0 || !budgets_valid || fast_budgets.empty()) {
-    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT] [FAST_BUDGETS]\n");
+  const std::size_t writers = argc > 10 ? std::strtoull(argv[10], nullptr, 10) : 1;
+  if (!kind || queries == 0 || !budgets_valid || fast_budgets.empty() || writers == 0) {
+    std::fprintf(stderr, "usage: index_benchmark [SHAPES] [VERTICES] [LANDMARKS] [QUERIES >= 1] [INDEX] [SCANNED_QUERIES] [EXACT_QUERIES] [REFIT] [FAST_BUDGETS] [WRITERS >= 1]\n");
     return 2;
   }
   const std::filesystem::path directory = std::filesystem::temp_directory_path() / "waymark-index-benchmark";
@@ -84,21 +89,32 @@ int main(int argc, char** argv) {
     return 1;
   }
 
-  // Ingest time is the upsert() calls' alone: making up the records is the client's work.
-  std::vector<ShapeRecord> batch;
-  double ingest_seconds = 0;
+  // Ingest time is the upsert() calls' alone: making up the records is the clients' work, done
+  // before the clock starts.
+  std::vector<std::vector<ShapeRecord>> batches;
   for (std::size_t n = 0; n < shapes; ++n) {
-    batch.push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
-    if (batch.size() == 1000 || n + 1 == shapes) {
-      const auto upsert_start = Clock::now();
-      if (Status s = (*collection)->upsert(batch); !s.is_ok()) {
-        std::fprintf(stderr, "%s\n", s.to_string().c_str());
-        return 1;
-      }
-      ingest_seconds += milliseconds(Clock::now() - upsert_start) / 1000;
-      batch.clear();
-    }
+    if (n % 1000 == 0) batches.emplace_back().reserve(1000);
+    batches.back().push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
   }
+  std::atomic<std::size_t> next_batch = 0;
+  std::atomic<bool> failed = false;
+  auto write_batches = [&] {
+    for (std::size_t b = next_batch++; b < batches.size() && !failed; b = next_batch++) {
+      if (Status s = (*collection)->upsert(batches[b]); !s.is_ok()) {
+        std::fprintf(stderr, "%s\n", s.to_string().c_str());
+        failed = true;
+      }
+    }
+  };
+  const auto ingest_start = Clock::now();
+  {
+    std::vector<std::jthread> clients;
+    for (std::size_t w = 1; w < writers; ++w) clients.emplace_back(write_batches);
+    write_batches();
+  }
+  const double ingest_seconds = milliseconds(Clock::now() - ingest_start) / 1000;
+  if (failed) return 1;
+  batches = {};
 
   ApproximateIndexSettings build_now;
   build_now.minimum_size = 1;
@@ -146,7 +162,8 @@ int main(int argc, char** argv) {
   const double raw_bytes = 16.0 * vertices + 4.0 * landmarks;  // vertices as float64 pairs + the vector
   std::printf("shapes %zu, vertices %zu, landmarks %zu, queries %zu (%zu with full scan), index %s, one thread\n",
               shapes, vertices, landmarks, queries, std::min(queries, scanned_queries), index_kind_name(*kind));
-  std::printf("durable ingest (batches of 1000): %.0f shapes/s\n", shapes / ingest_seconds);
+  std::printf("durable ingest (batches of 1000, %zu writer%s): %.0f shapes/s\n", writers, writers == 1 ? "" : "s",
+              shapes / ingest_seconds);
   std::printf("reopen (reads every record and sketch, rebuilds the exhaustive index): %.2f s\n", reopen_seconds);
   if (*kind != IndexKind::exhaustive) {
     std::printf("approximate index build after reopen: %.2f s\n", build_seconds);
