@@ -109,9 +109,9 @@ Result<Shape> shape_field(const Json& object, const char* field, const ShapeLimi
   if (found->is_string()) {
     shape = parse_shape(found->get_ref<const std::string&>(), ShapeFormat::automatic, options);
   } else if (found->is_object()) {
-    shape = parse_geojson(found->dump(), options);
+    shape = geojson_from_json(*found, options);
   } else if (found->is_array()) {
-    shape = parse_point_arrays(found->dump(), options);
+    shape = point_arrays_from_json(*found, options);
   } else {
     return wrong_type(field, "a GeoJSON geometry object, a WKT or SVG path string, or point arrays");
   }

@@ -24,6 +24,7 @@
 // printed with 17 significant digits so doubles survive exactly.
 #pragma once
 
+#include <nlohmann/json_fwd.hpp>
 #include <string>
 #include <string_view>
 
@@ -45,6 +46,11 @@ Result<Shape> parse_wkt(std::string_view text, const ParseOptions& options = {})
 Result<Shape> parse_geojson(std::string_view text, const ParseOptions& options = {});
 Result<Shape> parse_svg_path(std::string_view text, const ParseOptions& options = {});
 Result<Shape> parse_point_arrays(std::string_view text, const ParseOptions& options = {});
+// The same two readers for JSON already parsed, e.g. a member of a request body: the text is
+// not printed and parsed again. Results and errors (JSON paths from "$") are those of
+// parse_geojson / parse_point_arrays on the value's text.
+Result<Shape> geojson_from_json(const nlohmann::json& value, const ParseOptions& options = {});
+Result<Shape> point_arrays_from_json(const nlohmann::json& value, const ParseOptions& options = {});
 
 // Chooses the parser from the first non-blank character: '{' GeoJSON, '[' point arrays, an
 // SVG path command letter (M or m) SVG path data, anything else WKT.

@@ -159,13 +159,20 @@ Json path_json(const Path& path, bool close_ring) {
 Result<Shape> parse_geojson(std::string_view text, const ParseOptions& options) {
   Result<Json> json = parse_json_text(text);
   if (!json) return json.status();
-  return JsonShapeReader(options).read_geometry(*json, "$");
+  return geojson_from_json(*json, options);
+}
+
+Result<Shape> geojson_from_json(const nlohmann::json& value, const ParseOptions& options) {
+  return JsonShapeReader(options).read_geometry(value, "$");
 }
 
 Result<Shape> parse_point_arrays(std::string_view text, const ParseOptions& options) {
   Result<Json> json = parse_json_text(text);
   if (!json) return json.status();
-  const Json& root = *json;
+  return point_arrays_from_json(*json, options);
+}
+
+Result<Shape> point_arrays_from_json(const nlohmann::json& root, const ParseOptions& options) {
   if (!root.is_array() || root.empty()) return invalid_argument("expected a non-empty array of points or strokes", "$");
   JsonShapeReader reader(options);
   Shape shape;

@@ -3,6 +3,7 @@
 // counted from 0, columns from 1).
 #include <catch2/catch.hpp>
 #include <cmath>
+#include <nlohmann/json.hpp>
 
 #include "sketch/geometry/formats.h"
 
@@ -122,6 +123,32 @@ TEST_CASE("GeoJsonErrorsNameTheJsonPath") {
   CHECK(s.where() == "$.type");
   s = error_of(R"({"type":"LineString","coordinates":[]})");
   CHECK(s.message() == "empty geometries are not supported");
+}
+
+// The readers of parsed JSON (used for request bodies) answer as the text parsers do on the
+// value's text: the same shape, or the same message and JSON path.
+TEST_CASE("ParsedJsonReadersMatchTheTextParsers") {
+  const std::vector<std::string> texts = {
+      R"({"type":"LineString","coordinates":[[0,0],[3,4],[1e-300,-2.5e10]]})",
+      R"({"type":"MultiPolygon","coordinates":[[[[0,0],[2,0],[2,2],[0,0]]],[[[5,5],[6,5],[6,6],[5,5]]]]})",
+      R"({"type":"MultiLineString","coordinates":[[[0,0],[1,1]],[[0,0],[1,"a"]]]})",
+      R"({"type":"Polygon","coordinates":[[[0,0],[2,0],[2,2]]]})",
+      "[[0,0],[1,1],[2,0]]",
+      "[[[0,0],[1,1]],[[5,5],\"x\"]]",
+      "[[0,0]]"};
+  for (const std::string& text : texts) {
+    INFO(text);
+    const nlohmann::json value = nlohmann::json::parse(text);
+    const Result<Shape> from_text = text[0] == '{' ? parse_geojson(text) : parse_point_arrays(text);
+    const Result<Shape> from_value = text[0] == '{' ? geojson_from_json(value) : point_arrays_from_json(value);
+    REQUIRE(from_text.is_ok() == from_value.is_ok());
+    if (from_text.is_ok()) {
+      CHECK(*from_text == *from_value);
+    } else {
+      CHECK(from_text.status().message() == from_value.status().message());
+      CHECK(from_text.status().where() == from_value.status().where());
+    }
+  }
 }
 
 TEST_CASE("MalformedJsonReportsItsPosition") {
