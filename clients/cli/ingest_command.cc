@@ -3,6 +3,9 @@
 #include <unistd.h>
 
 #include <chrono>
+#include <deque>
+#include <future>
+#include <memory>
 #include <cmath>
 #include <cstdio>
 #include <iostream>
@@ -21,8 +24,8 @@ using Json = nlohmann::json;
 using Clock = std::chrono::steady_clock;
 
 constexpr const char* kUsage =
-    "usage: waymark ingest COLLECTION PATH... [--id-property NAME] [--batch N] [--resume] [--retries N]\n"
-    "                      [--progress auto|bar|lines|none] [--server URL] [--token TOKEN]\n";
+    "usage: waymark ingest COLLECTION PATH... [--id-property NAME] [--batch N] [--connections N] [--resume]\n"
+    "                      [--retries N] [--progress auto|bar|lines|none] [--server URL] [--token TOKEN]\n";
 
 std::string duration_text(double seconds) {
   if (!std::isfinite(seconds) || seconds < 0) return "?";
@@ -92,61 +95,139 @@ Result<std::unordered_set<std::string>> stored_ids(HttpClient& client, const std
 struct Batch {
   std::string body;
   std::vector<std::string> where;  // per NDJSON line
+  std::unordered_set<std::string> ids;
 };
 
+// What the server said to one batch.
+struct Outcome {
+  Status status;  // not ok: a failure that stops the load
+  std::size_t accepted = 0, rejected = 0, retries = 0;
+  std::vector<SourceProblem> problems;  // the rejected lines
+};
+
+// Sends one batch, retrying on 429/503 and on dropped connections (an upsert batch is safe to
+// repeat).
+Outcome send_batch(HttpClient& client, const std::string& target, std::size_t retries, const Batch& batch) {
+  Outcome outcome;
+  std::mt19937 jitter(std::random_device{}());
+  for (std::size_t attempt = 0;; ++attempt) {
+    Result<HttpReply> reply = client.send("POST", target, batch.body, "application/x-ndjson");
+    const bool retryable = !reply || reply->status == 429 || reply->status == 503;
+    if (retryable && attempt < retries) {
+      double wait = std::min(10.0, 0.25 * std::pow(2.0, static_cast<double>(attempt)));
+      if (reply && !reply->retry_after.empty()) wait = std::clamp(std::atof(reply->retry_after.c_str()), 0.0, 60.0);
+      wait *= std::uniform_real_distribution<double>(0.8, 1.2)(jitter);
+      ++outcome.retries;
+      std::this_thread::sleep_for(std::chrono::duration<double>(wait));
+      continue;
+    }
+    if (!reply) {
+      outcome.status = Status(reply.status().code(), reply.status().message() + " (gave up after " +
+                                                         std::to_string(attempt + 1) + " attempts)");
+      return outcome;
+    }
+    const Json body = Json::parse(reply->body, nullptr, false);
+    if (body.is_object() && body.contains("accepted") && body["accepted"].is_number_unsigned() &&
+        body.contains("rejections") && body["rejections"].is_array()) {
+      outcome.accepted = body["accepted"].get<std::size_t>();
+      for (const Json& rejection : body["rejections"]) {
+        const std::size_t line = rejection.is_object() ? rejection.value("line", std::size_t{0}) : 0;
+        Json error = rejection.is_object() ? rejection.value("error", Json::object()) : Json::object();
+        if (!error.is_object()) error = Json::object();
+        std::string reason = error.value("message", std::string("rejected"));
+        if (const std::string at = error.value("where", std::string()); !at.empty()) reason += " (at " + at + ")";
+        ++outcome.rejected;
+        outcome.problems.push_back(
+            {line >= 1 && line <= batch.where.size() ? batch.where[line - 1] : "batch line " + std::to_string(line),
+             reason});
+      }
+      if (body.contains("error")) {
+        outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
+      } else if (reply->status < 200 || reply->status >= 300) {
+        outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
+      }
+      return outcome;
+    }
+    outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
+    return outcome;
+  }
+}
+
+// Keeps up to one batch in flight per connection, so that the server works on several at once
+// (it commits concurrent batches together and parses them on separate threads). Outcomes are
+// taken in the order the batches were sent. A batch holding an id that a batch in flight also
+// holds waits for that one first, so that the later record still wins.
 class Loader {
  public:
-  Loader(HttpClient& client, std::string collection, std::size_t retries)
-      : client_(client), collection_(std::move(collection)), retries_(retries) {}
-
-  // Sends one batch, retrying on 429/503 and on dropped connections (an upsert batch is safe to
-  // repeat). Rejected lines are added to `problems`. A failure that stops the load is returned.
-  Status send(const Batch& batch, std::size_t& accepted, std::vector<SourceProblem>& problems) {
-    const std::string target = "/v1/collections/" + url_encode(collection_) + "/shapes";
-    std::mt19937 jitter(std::random_device{}());
-    for (std::size_t attempt = 0;; ++attempt) {
-      Result<HttpReply> reply = client_.send("POST", target, batch.body, "application/x-ndjson");
-      const bool retryable = !reply || reply->status == 429 || reply->status == 503;
-      if (retryable && attempt < retries_) {
-        double wait = std::min(10.0, 0.25 * std::pow(2.0, static_cast<double>(attempt)));
-        if (reply && !reply->retry_after.empty()) wait = std::clamp(std::atof(reply->retry_after.c_str()), 0.0, 60.0);
-        wait *= std::uniform_real_distribution<double>(0.8, 1.2)(jitter);
-        ++retries_used_;
-        std::this_thread::sleep_for(std::chrono::duration<double>(wait));
-        continue;
-      }
-      if (!reply) {
-        return Status(reply.status().code(), reply.status().message() + " (gave up after " + std::to_string(attempt + 1) +
-                                                 " attempts)");
-      }
-      const Json body = Json::parse(reply->body, nullptr, false);
-      if (body.is_object() && body.contains("accepted") && body.contains("rejections")) {
-        accepted += body["accepted"].get<std::size_t>();
-        for (const Json& rejection : body["rejections"]) {
-          const std::size_t line = rejection.value("line", std::size_t{0});
-          const Json& error = rejection["error"];
-          std::string reason = error.value("message", std::string("rejected"));
-          if (const std::string at = error.value("where", std::string()); !at.empty()) reason += " (at " + at + ")";
-          ++rejected_;
-          problems.push_back({line >= 1 && line <= batch.where.size() ? batch.where[line - 1] : "batch line " + std::to_string(line),
-                              reason});
-        }
-        if (body.contains("error")) return Status(StatusCode::failed_precondition, describe_error_reply(*reply));
-        if (reply->status >= 200 && reply->status < 300) return Status::ok();
-      }
-      return Status(StatusCode::failed_precondition, describe_error_reply(*reply));
-    }
+  Loader(std::vector<std::unique_ptr<HttpClient>> connections, const std::string& collection, std::size_t retries)
+      : connections_(std::move(connections)),
+        target_("/v1/collections/" + url_encode(collection) + "/shapes"),
+        retries_(retries) {
+    for (std::size_t c = 0; c < connections_.size(); ++c) idle_.push_back(c);
   }
 
-  std::size_t retries_used() const { return retries_used_; }
+  // Sends `batch` once a connection is free; false once a failure has stopped the load.
+  bool send(Batch batch) {
+    while (!in_flight_.empty() && shares_an_id(batch)) take_oldest();
+    if (idle_.empty()) take_oldest();
+    if (!failure_.is_ok()) return false;
+    const std::size_t connection = idle_.back();
+    idle_.pop_back();
+    auto sent = std::make_shared<Batch>(std::move(batch));
+    std::future<Outcome> outcome = std::async(std::launch::async, [this, connection, sent] {
+      return send_batch(*connections_[connection], target_, retries_, *sent);
+    });
+    in_flight_.push_back({connection, sent, std::move(outcome)});
+    return true;
+  }
+  // Waits for every batch in flight.
+  void finish() {
+    while (!in_flight_.empty()) take_oldest();
+  }
+
+  const Status& failure() const { return failure_; }
+  std::size_t accepted() const { return accepted_; }
   std::size_t rejected() const { return rejected_; }
+  std::size_t retries_used() const { return retries_used_; }
+  // Rejected lines, in the order their batches were sent.
+  std::vector<SourceProblem>& problems() { return problems_; }
 
  private:
-  HttpClient& client_;
-  std::string collection_;
+  struct InFlight {
+    std::size_t connection;
+    std::shared_ptr<const Batch> batch;
+    std::future<Outcome> outcome;
+  };
+
+  bool shares_an_id(const Batch& batch) const {
+    for (const InFlight& flight : in_flight_) {
+      for (const std::string& id : batch.ids) {
+        if (flight.batch->ids.contains(id)) return true;
+      }
+    }
+    return false;
+  }
+
+  void take_oldest() {
+    InFlight oldest = std::move(in_flight_.front());
+    in_flight_.pop_front();
+    Outcome outcome = oldest.outcome.get();
+    idle_.push_back(oldest.connection);
+    accepted_ += outcome.accepted;
+    rejected_ += outcome.rejected;
+    retries_used_ += outcome.retries;
+    problems_.insert(problems_.end(), outcome.problems.begin(), outcome.problems.end());
+    if (failure_.is_ok() && !outcome.status.is_ok()) failure_ = outcome.status;
+  }
+
+  std::vector<std::unique_ptr<HttpClient>> connections_;
+  std::string target_;
   std::size_t retries_;
-  std::size_t retries_used_ = 0;
-  std::size_t rejected_ = 0;
+  std::vector<std::size_t> idle_;
+  std::deque<InFlight> in_flight_;
+  Status failure_;
+  std::size_t accepted_ = 0, rejected_ = 0, retries_used_ = 0;
+  std::vector<SourceProblem> problems_;
 };
 
 int fail(const std::string& message) {
@@ -158,31 +239,41 @@ int fail(const std::string& message) {
 
 int ingest_command(const std::vector<std::string>& words) {
   Result<Arguments> arguments =
-      Arguments::parse(words, with_server_flags({"id-property", "batch", "retries", "progress"}), {"resume"});
+      Arguments::parse(words, with_server_flags({"id-property", "batch", "connections", "retries", "progress"}), {"resume"});
   if (!arguments || arguments->operands().size() < 2) {
     std::cerr << (arguments ? "" : "waymark ingest: " + arguments.status().to_string() + "\n") << kUsage;
     return kExitUsage;
   }
   Result<std::uint64_t> batch_size = arguments->count("batch", 1000);
+  // Two batches at once keep a two-worker server busy: one is parsed while the other is written
+  // (scripts/http-ingest-benchmark.py: 1.8x one connection's rate, 2026-12-03; clients/README.md).
+  Result<std::uint64_t> connections = arguments->count("connections", 2);
   Result<std::uint64_t> retries = arguments->count("retries", 8);
   const std::string progress_flag = arguments->value_or("progress", "auto");
-  if (!batch_size || !retries || *batch_size == 0 || *batch_size > 100000 ||
+  if (!batch_size || !connections || !retries || *batch_size == 0 || *batch_size > 100000 || *connections == 0 ||
+      *connections > 16 ||
       (progress_flag != "auto" && progress_flag != "bar" && progress_flag != "lines" && progress_flag != "none")) {
-    std::cerr << "waymark ingest: --batch must be 1 to 100000, --retries a count, --progress auto|bar|lines|none\n"
+    std::cerr << "waymark ingest: --batch must be 1 to 100000, --connections 1 to 16, --retries a count, --progress "
+                 "auto|bar|lines|none\n"
               << kUsage;
     return kExitUsage;
   }
-  Result<std::unique_ptr<HttpClient>> client = connect_from(*arguments);
-  if (!client) {
-    std::cerr << "waymark ingest: " << client.status().to_string() << "\n";
-    return kExitUsage;
+  std::vector<std::unique_ptr<HttpClient>> clients;
+  for (std::size_t c = 0; c < *connections; ++c) {
+    Result<std::unique_ptr<HttpClient>> client = connect_from(*arguments);
+    if (!client) {
+      std::cerr << "waymark ingest: " << client.status().to_string() << "\n";
+      return kExitUsage;
+    }
+    clients.push_back(std::move(*client));
   }
+  HttpClient& client = *clients.front();
   const std::string collection = arguments->operands()[0];
   const std::vector<std::string> paths(arguments->operands().begin() + 1, arguments->operands().end());
   SourceOptions options;
   options.id_property = arguments->value_or("id-property", "");
 
-  Result<Json> described = json_reply((*client)->send("GET", "/v1/collections/" + url_encode(collection)));
+  Result<Json> described = json_reply(client.send("GET", "/v1/collections/" + url_encode(collection)));
   if (!described) return fail(described.status().message());
 
   std::vector<SourceProblem> problems;
@@ -197,7 +288,7 @@ int ingest_command(const std::vector<std::string>& words) {
   }
   std::unordered_set<std::string> already;
   if (arguments->has("resume")) {
-    Result<std::unordered_set<std::string>> ids = stored_ids(**client, collection);
+    Result<std::unordered_set<std::string>> ids = stored_ids(client, collection);
     if (!ids) return fail("listing the stored ids for --resume: " + ids.status().message());
     already = std::move(*ids);
   }
@@ -207,24 +298,27 @@ int ingest_command(const std::vector<std::string>& words) {
   if (progress_flag == "none") style = ProgressReport::Style::none;
   const Clock::time_point start = Clock::now();
 
-  Loader loader(**client, collection, *retries);
-  std::size_t accepted = 0, skipped_stored = 0;
+  Loader loader(std::move(clients), collection, *retries);
+  std::size_t skipped_stored = 0;
   std::unordered_set<std::string> seen;
   std::vector<std::string> duplicates;
   Batch batch;
-  Status failure;
+  bool stopped = false;
   ProgressReport progress(style, total);
+  auto report_progress = [&](bool final) {
+    progress.update(loader.accepted() + skipped_stored + loader.rejected(), problems.size() + loader.rejected(), final);
+  };
   auto flush = [&]() {
-    if (batch.where.empty() || !failure.is_ok()) return;
-    failure = loader.send(batch, accepted, problems);
+    if (batch.where.empty() || stopped) return;
+    stopped = !loader.send(std::move(batch));
     batch = Batch();
-    progress.update(accepted + skipped_stored + loader.rejected(), problems.size());
+    report_progress(false);
   };
   for (const auto& file : files) {
-    if (!failure.is_ok()) break;
+    if (stopped) break;
     read_shape_file(file, options,
                     [&](SourceShape&& shape) {
-                      if (!failure.is_ok()) return;
+                      if (stopped) return;
                       if (already.contains(shape.id)) {
                         ++skipped_stored;
                         return;
@@ -237,12 +331,17 @@ int ingest_command(const std::vector<std::string>& words) {
                       batch.body += line.dump(-1, ' ', false, Json::error_handler_t::replace);
                       batch.body += '\n';
                       batch.where.push_back(std::move(shape.where));
+                      batch.ids.insert(shape.id);
                       if (batch.where.size() >= *batch_size) flush();
                     },
                     problems);
   }
   flush();
-  progress.update(accepted + skipped_stored + loader.rejected(), problems.size(), true);
+  loader.finish();
+  report_progress(true);
+  const std::size_t accepted = loader.accepted();
+  const Status& failure = loader.failure();
+  problems.insert(problems.end(), loader.problems().begin(), loader.problems().end());
 
   const double seconds = std::chrono::duration<double>(Clock::now() - start).count();
   std::printf("%s: stored %zu shapes from %zu %s in %.1f s (%.0f shapes/s)", collection.c_str(), accepted,

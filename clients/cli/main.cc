@@ -25,11 +25,12 @@ Geometry commands (local, no server):
 
 Server commands (over HTTP; --server URL or WAYMARK_SERVER, default http://127.0.0.1:7700;
 --token TOKEN or WAYMARK_TOKEN):
-  ingest COLLECTION PATH... [--id-property NAME] [--batch N] [--resume] [--retries N]
-                            [--progress auto|bar|lines|none]
+  ingest COLLECTION PATH... [--id-property NAME] [--batch N] [--connections N] [--resume]
+                            [--retries N] [--progress auto|bar|lines|none]
       Loads files and folders: GeoJSON (.geojson, .json), WKT lines "ID<TAB>WKT" (.wkt, .txt,
       .tsv), SVG (.svg: path, polyline and polygon elements) and bulk NDJSON (.ndjson). Retries on
       429/503; --resume skips ids already stored. Lists every rejected input with its place.
+      --connections (default 2) batches are sent at once.
   nearest COLLECTION (SHAPE | --id ID) [--k N] [--metric M] [--exact] [--candidates N]
                      [--filter JSON] [--json]
       The k stored shapes nearest to SHAPE (a file or inline text), or to a stored shape.

@@ -179,6 +179,22 @@ def main():
         code, out, err = cli(port, "nearest", "parts", "--id", "no-such-id")
         check(code == 3 and "404" in err, "a missing id is reported with the server's 404: " + err)
 
+        # --- an id repeated in batches in flight at once keeps its later record ------------------
+        status, _ = call(port, "PUT", "/v1/collections/pairs", {"landmarks": {"count": 16}})
+        pairs_path = os.path.join(work, "pairs.ndjson")
+        with open(pairs_path, "w") as f:
+            for i in range(40):
+                for version in (1, 2):
+                    f.write(json.dumps({"id": "pair-%d" % i, "metadata": {"version": version},
+                                        "geometry": {"type": "LineString", "coordinates": [[0, 0], [i + 1, version]]}}) + "\n")
+        code, out, err = cli(port, "ingest", "pairs", pairs_path, "--batch", "1", "--connections", "4", "--progress", "none")
+        check(status == 201 and code == 0 and "stored 80 shapes" in out, "pairs ingested on 4 connections: " + out + err)
+        stale = [i for i in range(40)
+                 if call(port, "GET", "/v1/collections/pairs/shapes/pair-%d" % i)[1].get("metadata") != {"version": 2}]
+        check(not stale, "each id keeps its later record though batches were in flight at once; stale: %s" % stale)
+        code, out, err = cli(port, "ingest", "pairs", pairs_path, "--connections", "0")
+        check(code == 2 and "--connections 1 to 16" in err, "--connections 0 is a usage error: " + err)
+
         # --- stats --------------------------------------------------------------------------------
         code, out, err = cli(port, "stats")
         check(code == 0 and any(line.split()[:2] == ["parts", str(len(expected))] for line in out.splitlines()),
