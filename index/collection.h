@@ -7,9 +7,12 @@
 // sketches.
 //
 // Writes: upsert() and remove() apply a whole batch or nothing, and return only after the
-// batch is synced to disk (RocksDB WriteBatch with sync). Writes are serialised; queries run
-// concurrently with each other and with writes, and a write becomes visible to queries once
-// upsert() returns.
+// batch is synced to disk (RocksDB WriteBatch with sync). An upsert checks, encodes and
+// sketches its batch on the caller's thread without a lock; concurrent upserts are then
+// committed in groups (one synced WriteBatch for every batch waiting, applied to the indexes
+// in arrival order; a failed write fails each batch of its group, and none is applied).
+// Commits and removes are serialised; queries run concurrently with each other and with
+// writes, and a write becomes visible to queries once upsert() returns.
 //
 // Landmark generations: the sketches of every shape are kept per landmark generation; a
 // refit() builds the next generation beside the current one and switches atomically.

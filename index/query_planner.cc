@@ -330,8 +330,10 @@ bool refused_by_copy(const PreparedQuery& query, const ResidentCopy::Decoded& co
     const PreparedShape prepared(copy.shape);  // its box too: no second pass over the copy
     return !hausdorff_at_most(query.prepared, prepared, widened(prepared.box));
   }
+  // The plain decision: a search started at the threshold would also record its band and
+  // bracket the value, work that the copy's answer (refuse or read the record) never uses.
   Result<Path> curve = curve_of(copy.shape);
-  return curve && !FrechetSearch::start(*query.curve, *curve, widened(bounding_box(copy.shape)));
+  return curve && !frechet_at_most(*query.curve, *curve, widened(bounding_box(copy.shape)));
 }
 
 // The stored shape under `label`, framed, when it is still stored under that label, can be

@@ -7,6 +7,13 @@ namespace waymark {
 
 PreparedShape::PreparedShape(const Shape& shape)
     : kind(shape.kind), box(bounding_box(shape)), diameter_bound(box.diagonal()) {
+  // At most one segment per vertex: reserving once saves each array its growth steps, which
+  // queries paid for every candidate they decide on a float copy.
+  const std::size_t most_segments = shape.vertex_count();
+  for (std::vector<double>* values : {&start_x, &start_y, &delta_x, &delta_y, &inverse_length_squared, &length}) {
+    values->reserve(most_segments);
+  }
+  continues_previous.reserve(most_segments);
   bool first_of_part = true;  // the next segment added starts a stroke or ring
   auto add = [&](Point a, Point b) {
     const double dx = b.x - a.x, dy = b.y - a.y;
