@@ -746,6 +746,40 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       batch.clear();
       batch_lines.clear();
     };
+    const ShapeLimits limits = collection.settings().limits;
+    // A line read through a JSON document, for lines read_plain_bulk_line leaves to it; rejects
+    // the line (nullopt) with the first problem found.
+    auto read_in_general = [&](std::size_t line_number, std::string_view line) -> std::optional<ShapeRecord> {
+      Json object;
+      try {
+        object = Json::parse(line);
+      } catch (const Json::parse_error& error) {
+        reject(line_number, "",
+               invalid_argument("not valid JSON", "column " + std::to_string(error.byte > 0 ? error.byte : 1)));
+        return std::nullopt;
+      } catch (const Json::exception& error) {  // e.g. a number beyond the range of a double
+        reject(line_number, "", invalid_argument(std::string("not valid JSON: ") + error.what(), "line"));
+        return std::nullopt;
+      }
+      if (!object.is_object()) {
+        reject(line_number, "", invalid_argument("each line must be a JSON object", "line"));
+        return std::nullopt;
+      }
+      Result<std::string> id = string_field(object, "id", "");
+      if (!id || id->empty()) {
+        reject(line_number, "", id ? invalid_argument("id is required", "id") : id.status());
+        return std::nullopt;
+      }
+      Status checked = check_known_fields(object, {"id", "geometry", "metadata"});
+      if (checked.is_ok()) checked = check_shape_id(*id, "id");
+      Result<Shape> shape = checked.is_ok() ? shape_field(object, "geometry", limits) : Result<Shape>(checked);
+      Result<std::string> metadata = shape ? metadata_field(object, "metadata") : Result<std::string>(shape.status());
+      if (!metadata) {
+        reject(line_number, *id, metadata.status());
+        return std::nullopt;
+      }
+      return ShapeRecord{*id, std::move(*shape), std::move(*metadata)};
+    };
     const std::string_view body = request.body;
     std::size_t line_number = 0;
     for (std::size_t begin = 0; begin < body.size() && !failure;) {
@@ -757,41 +791,19 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       if (line.ends_with('\r')) line.remove_suffix(1);
       if (line.find_first_not_of(" \t") == std::string_view::npos) continue;
       ++lines;
-      Json object;
-      try {
-        object = Json::parse(line);
-      } catch (const Json::parse_error& error) {
-        reject(line_number, "",
-               invalid_argument("not valid JSON", "column " + std::to_string(error.byte > 0 ? error.byte : 1)));
-        continue;
-      } catch (const Json::exception& error) {  // e.g. a number beyond the range of a double
-        reject(line_number, "", invalid_argument(std::string("not valid JSON: ") + error.what(), "line"));
+      std::optional<ShapeRecord> record;
+      if (std::optional<PlainBulkLine> plain = read_plain_bulk_line(line, limits);
+          plain && check_shape_id(plain->id, "id").is_ok()) {
+        record = ShapeRecord{std::move(plain->id), std::move(plain->shape), std::move(plain->metadata)};
+      } else {
+        record = read_in_general(line_number, line);  // its errors are the ones reported
+        if (!record) continue;
+      }
+      if (Status s = collection.check(*record); !s.is_ok()) {
+        reject(line_number, record->id, s);
         continue;
       }
-      if (!object.is_object()) {
-        reject(line_number, "", invalid_argument("each line must be a JSON object", "line"));
-        continue;
-      }
-      Result<std::string> id = string_field(object, "id", "");
-      if (!id || id->empty()) {
-        reject(line_number, "", id ? invalid_argument("id is required", "id") : id.status());
-        continue;
-      }
-      Status checked = check_known_fields(object, {"id", "geometry", "metadata"});
-      if (checked.is_ok()) checked = check_shape_id(*id, "id");
-      Result<Shape> shape = checked.is_ok() ? shape_field(object, "geometry", collection.settings().limits)
-                                            : Result<Shape>(checked);
-      Result<std::string> metadata = shape ? metadata_field(object, "metadata") : Result<std::string>(shape.status());
-      if (!metadata) {
-        reject(line_number, *id, metadata.status());
-        continue;
-      }
-      ShapeRecord record{*id, std::move(*shape), std::move(*metadata)};
-      if (Status s = collection.check(record); !s.is_ok()) {
-        reject(line_number, *id, s);
-        continue;
-      }
-      batch.push_back(std::move(record));
+      batch.push_back(std::move(*record));
       batch_lines.push_back(line_number);
       if (batch.size() >= config_.bulk_batch_size) flush();
     }

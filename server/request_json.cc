@@ -15,7 +15,96 @@ Status wrong_type(const std::string& where, const char* expected) {
   return invalid_argument(where + " must be " + expected, where);
 }
 
+// One past the end of the object or array that starts at `begin`, found by its brackets and
+// strings alone; whoever reads the value checks it.
+std::optional<std::size_t> end_of_container(std::string_view text, std::size_t begin) {
+  int depth = 0;
+  bool in_string = false;
+  for (std::size_t i = begin; i < text.size(); ++i) {
+    const char c = text[i];
+    if (in_string) {
+      if (c == '\\') {
+        ++i;
+      } else if (c == '"') {
+        in_string = false;
+      }
+    } else if (c == '"') {
+      in_string = true;
+    } else if (c == '{' || c == '[') {
+      ++depth;
+    } else if ((c == '}' || c == ']') && --depth == 0) {
+      return i + 1;
+    }
+  }
+  return std::nullopt;
+}
+
 }  // namespace
+
+std::optional<PlainBulkLine> read_plain_bulk_line(std::string_view line, const ShapeLimits& limits) {
+  std::size_t at = 0;
+  auto skip_spaces = [&] {
+    while (at < line.size() && (line[at] == ' ' || line[at] == '\t' || line[at] == '\n' || line[at] == '\r')) ++at;
+  };
+  auto take = [&](char c) {
+    if (at >= line.size() || line[at] != c) return false;
+    ++at;
+    return true;
+  };
+  auto read_plain_string = [&](std::optional<std::string_view>& out) {
+    if (!take('"')) return false;
+    const std::size_t begin = at;
+    while (at < line.size() && line[at] != '"') {
+      const unsigned char c = static_cast<unsigned char>(line[at]);
+      if (c < 0x20 || c > 0x7e || c == '\\') return false;
+      ++at;
+    }
+    if (at == line.size()) return false;
+    out = line.substr(begin, at - begin);
+    ++at;
+    return true;
+  };
+  auto read_object = [&](std::optional<std::string_view>& out) {
+    if (at >= line.size() || line[at] != '{') return false;
+    const std::optional<std::size_t> end = end_of_container(line, at);
+    if (!end) return false;
+    out = line.substr(at, *end - at);
+    at = *end;
+    return true;
+  };
+  std::optional<std::string_view> id, geometry, metadata;
+  skip_spaces();
+  if (!take('{')) return std::nullopt;
+  while (true) {
+    std::optional<std::string_view> key;
+    skip_spaces();
+    if (!read_plain_string(key)) return std::nullopt;
+    skip_spaces();
+    if (!take(':')) return std::nullopt;
+    skip_spaces();
+    // A member given twice is left to the general reading.
+    if (!((*key == "id" && !id && read_plain_string(id)) || (*key == "geometry" && !geometry && read_object(geometry)) ||
+          (*key == "metadata" && !metadata && read_object(metadata)))) {
+      return std::nullopt;
+    }
+    skip_spaces();
+    if (take('}')) break;
+    if (!take(',')) return std::nullopt;
+  }
+  skip_spaces();
+  if (at != line.size() || !id || id->empty() || !geometry) return std::nullopt;
+  ParseOptions options;
+  options.limits = limits;
+  Result<Shape> shape = parse_geojson(*geometry, options);
+  if (!shape) return std::nullopt;
+  std::string metadata_text = "{}";
+  if (metadata) {
+    const Json parsed = Json::parse(*metadata, nullptr, false);
+    if (parsed.is_discarded() || !parsed.is_object()) return std::nullopt;
+    metadata_text = parsed.dump();
+  }
+  return PlainBulkLine{std::string(*id), std::move(*shape), std::move(metadata_text)};
+}
 
 std::string text_position(std::string_view text, std::size_t byte) {
   byte = std::min(byte, text.size());

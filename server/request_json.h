@@ -40,6 +40,20 @@ Result<Shape> shape_field(const Json& object, const char* field, const ShapeLimi
 // A metadata object as compact text; absent → "{}".
 Result<std::string> metadata_field(const Json& object, const char* field);
 
+// The common line of a bulk NDJSON body, read without building a JSON document (most of a bulk
+// load's time otherwise): an object with members "id", "geometry" and optionally "metadata",
+// in any order, whose id is printable ASCII without escapes, whose geometry is a GeoJSON
+// geometry object that parse_geojson reads, and whose metadata is an object. nullopt for any
+// other line and for every line the general reading (parse_object, then the fields above)
+// would refuse, so that its errors are the ones users see; otherwise the same id, shape and
+// metadata text as the general reading. The id is not checked here.
+struct PlainBulkLine {
+  std::string id;
+  Shape shape;
+  std::string metadata;
+};
+std::optional<PlainBulkLine> read_plain_bulk_line(std::string_view line, const ShapeLimits& limits);
+
 // A time for replies: RFC 3339 in UTC with milliseconds, "2026-12-02T13:05:00.123Z".
 std::string iso_time(std::int64_t unix_ms);
 

@@ -2,6 +2,7 @@
 // routing errors and not-ready answers come out as documented. (tests/server/server_test.py
 // drives the real server over HTTP.)
 #include <catch2/catch.hpp>
+#include <cmath>
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -9,6 +10,8 @@
 #include <sstream>
 
 #include "server/api.h"
+#include "server/request_json.h"
+#include "sketch/landmarks/landmark_set.h"
 #include "support/collection_helpers.h"
 
 using namespace waymark;
@@ -128,4 +131,76 @@ TEST_CASE("WritesAreRefusedWhenNoWriteTokenIsConfigured") {
   CHECK(refused.status == 403);
   CHECK(Json::parse(refused.body)["error"]["message"].get<std::string>().find("no write token") != std::string::npos);
   CHECK(api.handle({"GET", "/v1/collections", "", ""}).status == 200);  // reads open by default
+}
+
+// Bulk lines are read without a JSON document when they have the plain form
+// (read_plain_bulk_line); every line it reads must come out exactly as the general reading
+// (parse, then the id, geometry and metadata fields) gives it, and every other line is left
+// to the general reading. Seeded lines in the plain form and in the forms around it.
+TEST_CASE("PlainBulkLinesReadAsTheGeneralReadingDoes") {
+  SeededRandom random(77);
+  const ShapeLimits limits;
+  static const char* kIds[] = {R"("part-1")", R"("a b")", R"("")", R"("caf\u00e9")", R"("tab\there")", R"(17)",
+                               R"("x\"y")", "\"\xc3\xa9t\xc3\xa9\""};
+  static const char* kGeometries[] = {
+      R"({"type":"LineString","coordinates":[[0,0],[1,-0],[2.5,1e2]]})",
+      R"({ "coordinates" : [[[0,0],[4,0],[4,3],[0,0]]] , "type" : "Polygon" })",
+      R"({"type":"Point","coordinates":[1,2]})",
+      R"({"type":"Feature","properties":{"a":"}"},"geometry":{"type":"LineString","coordinates":[[0,0],[1,1]]}})",
+      R"({"type":"LineString","coordinates":[[0,0],[1,1,1]]})",
+      R"({"type":"Polygon","coordinates":[[[0,0],[4,0],[4,3]]]})",
+      R"x("LINESTRING (0 0, 3 4)")x",
+      R"([[0,0],[1,1]])",
+      R"(null)",
+      R"({"type":"LineString","coordinates":[[0,0],[1e400,1]]})"};
+  static const char* kMetadata[] = {R"({})", R"({"b":2,"a":[1,{"c":"]}"}]})", R"({"name":"\u00e9\"q"})", R"(null)",
+                                    R"([1])", R"({"x":1e400})", R"({"a":1,"a":2})"};
+  std::size_t plain_lines = 0, general_only = 0;
+  for (int t = 0; t < 3000; ++t) {
+    std::vector<std::string> members;
+    if (random.below(20)) members.push_back(std::string("\"id\":") + kIds[random.below(random.below(2) ? 2 : std::size(kIds))]);
+    if (random.below(20)) {
+      members.push_back(std::string("\"geometry\": ") +
+                        kGeometries[random.below(random.below(2) ? 3 : std::size(kGeometries))]);
+    }
+    if (random.below(2)) {
+      members.push_back(std::string("\"metadata\" :") +
+                        kMetadata[random.below(random.below(2) ? 3 : std::size(kMetadata))]);
+    }
+    if (random.below(30) == 0) members.push_back("\"extra\":1");
+    if (random.below(30) == 0 && !members.empty()) members.push_back(members.front());  // a member twice
+    for (std::size_t i = members.size(); i > 1; --i) std::swap(members[i - 1], members[random.below(i)]);
+    std::string line = random.below(4) ? "" : " ";
+    line += "{";
+    for (std::size_t i = 0; i < members.size(); ++i) line += (i ? (random.below(3) ? "," : " ,\t") : "") + members[i];
+    line += random.below(40) ? "}" : "},";
+    INFO(line);
+    const std::optional<PlainBulkLine> plain = read_plain_bulk_line(line, limits);
+    const Json document = Json::parse(line, nullptr, false);
+    if (!plain) {
+      ++general_only;
+      continue;
+    }
+    ++plain_lines;
+    REQUIRE(document.is_object());
+    CHECK(check_known_fields(document, {"id", "geometry", "metadata"}).is_ok());
+    Result<std::string> id = string_field(document, "id", "");
+    Result<Shape> shape = shape_field(document, "geometry", limits);
+    Result<std::string> metadata = metadata_field(document, "metadata");
+    REQUIRE(id.is_ok());
+    REQUIRE(shape.is_ok());
+    REQUIRE(metadata.is_ok());
+    CHECK(plain->id == *id);
+    CHECK(plain->metadata == *metadata);
+    REQUIRE(plain->shape == *shape);
+    for (std::size_t i = 0; i < shape->parts.size(); ++i) {
+      for (std::size_t j = 0; j < shape->parts[i].size(); ++j) {
+        CHECK(std::signbit(plain->shape.parts[i][j].x) == std::signbit(shape->parts[i][j].x));
+        CHECK(std::signbit(plain->shape.parts[i][j].y) == std::signbit(shape->parts[i][j].y));
+      }
+    }
+  }
+  INFO("plain " << plain_lines << ", left to the general reading " << general_only);
+  CHECK(plain_lines > 300);
+  CHECK(general_only > 300);
 }

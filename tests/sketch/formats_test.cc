@@ -2,10 +2,12 @@
 // round trips. Expected values are worked out by hand from the input text (byte offsets are
 // counted from 0, columns from 1).
 #include <catch2/catch.hpp>
+#include <bit>
 #include <cmath>
 #include <nlohmann/json.hpp>
 
 #include "sketch/geometry/formats.h"
+#include "sketch/landmarks/landmark_set.h"
 
 using namespace waymark;
 
@@ -149,6 +151,121 @@ TEST_CASE("ParsedJsonReadersMatchTheTextParsers") {
       CHECK(from_text.status().where() == from_value.status().where());
     }
   }
+}
+
+namespace {
+
+// Every coordinate bit for bit (operator== takes -0.0 for 0.0).
+bool same_bits(const Shape& a, const Shape& b) {
+  if (!(a == b)) return false;
+  for (std::size_t i = 0; i < a.parts.size(); ++i) {
+    for (std::size_t j = 0; j < a.parts[i].size(); ++j) {
+      if (std::bit_cast<std::uint64_t>(a.parts[i][j].x) != std::bit_cast<std::uint64_t>(b.parts[i][j].x) ||
+          std::bit_cast<std::uint64_t>(a.parts[i][j].y) != std::bit_cast<std::uint64_t>(b.parts[i][j].y)) {
+        return false;
+      }
+    }
+  }
+  return true;
+}
+
+// Seeded GeoJSON texts near the plain case that parse_geojson reads without a JSON document:
+// every type, both member orders, odd spacing and number spellings, and the ways such text
+// goes wrong (3D positions, open rings, empty arrays, extra members, escapes, bad numbers).
+std::string random_geojson(SeededRandom& random) {
+  static const char* kNumbers[] = {"0", "-0", "-0.0", "1", "-17", "3.25", "1e3", "2E-2", "-4.5e+1", "12345678901234567890123",
+                                   "9007199254740993", "0.1", "1e400", "1e-400", "01", "1.", ".5", "+1", "-", "1e"};
+  auto number = [&] {
+    return random.below(60) == 0 ? std::string(kNumbers[random.below(std::size(kNumbers))])
+                                : std::to_string(static_cast<int>(random.below(200)) - 100) + "." +
+                                      std::to_string(random.below(1000));
+  };
+  auto space = [&] { return std::string(random.below(2), random.below(4) == 0 ? " \n\t\r"[random.below(4)] : ' '); };
+  auto position = [&] {
+    std::string p = "[" + space() + number() + "," + space() + number();
+    if (random.below(30) == 0) p += "," + number();  // 3D
+    return p + space() + "]";
+  };
+  auto positions = [&](std::size_t count, bool ring) {
+    std::string first = position(), out = "[" + first;
+    for (std::size_t i = 1; i < count; ++i) out += "," + space() + (ring && i + 1 == count && random.below(10) ? first : position());
+    return count == 0 ? std::string("[]") : out + "]";
+  };
+  auto list = [&](std::size_t count, auto item) {
+    std::string out = "[";
+    for (std::size_t i = 0; i < count; ++i) out += (i ? "," : "") + item();
+    return out + "]";
+  };
+  static const char* kTypes[] = {"Point", "MultiPoint", "LineString", "MultiLineString", "Polygon", "MultiPolygon",
+                                 "Feature", "Curve"};
+  const std::string type = kTypes[random.below(std::size(kTypes))];
+  auto count = [&] { return random.below(12) == 0 ? 0 : 1 + random.below(6); };
+  std::string coordinates;
+  if (type == "Point") {
+    coordinates = position();
+  } else if (type == "MultiPoint" || type == "LineString" || type == "Curve") {
+    coordinates = positions(count(), false);
+  } else if (type == "MultiLineString") {
+    coordinates = list(count(), [&] { return positions(count(), false); });
+  } else if (type == "Polygon" || type == "Feature") {
+    coordinates = list(count(), [&] { return positions(3 + random.below(4), true); });
+  } else {
+    coordinates = list(count(), [&] { return list(count(), [&] { return positions(3 + random.below(4), true); }); });
+  }
+  std::vector<std::string> members = {"\"type\"" + space() + ":" + space() + "\"" + type + "\"",
+                                      "\"coordinates\":" + space() + coordinates};
+  if (random.below(20) == 0) members.push_back("\"bbox\":[0,0,1,1]");
+  if (random.below(20) == 0) members[0] = "\"type\":\"Line\\u0053tring\"";
+  if (random.below(2)) std::swap(members[0], members[1]);
+  std::string text = space() + "{";
+  for (std::size_t i = 0; i < members.size(); ++i) text += (i ? "," : "") + space() + members[i] + space();
+  text += "}" + space();
+  if (type == "Feature") text = R"({"type":"Feature","properties":{},"geometry":)" + text + "}";
+  if (random.below(40) == 0) text += "x";  // trailing text
+  return text;
+}
+
+}  // namespace
+
+// parse_geojson reads plain geometry objects without building a JSON document (bulk ingest);
+// on 5,000 seeded texts it must answer exactly as the general reader on the parsed document:
+// the same shape bit for bit, or the same error. Outside reference for the numbers: nlohmann
+// json's own reading of each literal.
+TEST_CASE("PlainGeoJsonFastPathAgreesWithTheGeneralReader") {
+  SeededRandom random(2026);
+  ParseOptions small;
+  small.limits.max_vertices = 20;  // some texts pass it
+  std::size_t shapes = 0, errors = 0;
+  for (int t = 0; t < 5000; ++t) {
+    const std::string text = random_geojson(random);
+    const ParseOptions& options = t % 3 == 0 ? small : ParseOptions{};
+    INFO(text);
+    const Result<Shape> fast = parse_geojson(text, options);
+    const nlohmann::json document = nlohmann::json::parse(text, nullptr, false);
+    if (document.is_discarded()) {
+      CHECK_FALSE(fast.is_ok());
+      ++errors;
+      continue;
+    }
+    Result<Shape> general = Status(StatusCode::invalid_argument, "unset");
+    try {
+      general = geojson_from_json(document, options);
+    } catch (const nlohmann::json::exception&) {
+      FAIL("the general reader threw");
+    }
+    REQUIRE(fast.is_ok() == general.is_ok());
+    if (fast.is_ok()) {
+      CHECK(same_bits(*fast, *general));
+      ++shapes;
+    } else {
+      CHECK(fast.status().message() == general.status().message());
+      CHECK(fast.status().where() == general.status().where());
+      ++errors;
+    }
+  }
+  INFO("shapes " << shapes << ", errors " << errors);
+  CHECK(shapes > 1000);
+  CHECK(errors > 500);
 }
 
 TEST_CASE("MalformedJsonReportsItsPosition") {
