@@ -282,10 +282,7 @@ int ingest_command(const std::vector<std::string>& words) {
 
   // First pass: count, so that progress can show a total and an ETA.
   std::size_t total = 0;
-  {
-    std::vector<SourceProblem> ignored;
-    for (const auto& file : files) read_shape_file(file, options, [&](SourceShape&&) { ++total; }, ignored);
-  }
+  for (const auto& file : files) total += count_shapes(file, options);
   std::unordered_set<std::string> already;
   if (arguments->has("resume")) {
     Result<std::unordered_set<std::string>> ids = stored_ids(client, collection);
@@ -326,9 +323,13 @@ int ingest_command(const std::vector<std::string>& words) {
                       if (!seen.insert(shape.id).second && duplicates.size() < 100) {
                         duplicates.push_back(shape.id + " again at " + shape.where);
                       }
-                      Json line = {{"id", shape.id}, {"geometry", std::move(shape.geometry)}};
-                      if (!shape.metadata.empty()) line["metadata"] = std::move(shape.metadata);
-                      batch.body += line.dump(-1, ' ', false, Json::error_handler_t::replace);
+                      if (!shape.line.empty()) {
+                        batch.body += shape.line;
+                      } else {
+                        Json line = {{"id", shape.id}, {"geometry", std::move(shape.geometry)}};
+                        if (!shape.metadata.empty()) line["metadata"] = std::move(shape.metadata);
+                        batch.body += line.dump(-1, ' ', false, Json::error_handler_t::replace);
+                      }
                       batch.body += '\n';
                       batch.where.push_back(std::move(shape.where));
                       batch.ids.insert(shape.id);

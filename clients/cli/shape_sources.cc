@@ -302,6 +302,7 @@ void read_ndjson(const fs::path& path, const std::string& text, const std::funct
     }
     SourceShape shape{object["id"], object["geometry"], Json::object(), where + " (id " + object["id"].get<std::string>() + ")"};
     if (object.contains("metadata") && !object["metadata"].is_null()) shape.metadata = object["metadata"];
+    if (object.size() == (object.contains("metadata") ? 3u : 2u)) shape.line = line;
     emit(std::move(shape));
   });
 }
@@ -367,6 +368,20 @@ void read_shape_file(const fs::path& path, const SourceOptions& options, const s
     case SourceFormat::ndjson:
       return read_ndjson(path, text, emit, problems);
   }
+}
+
+std::size_t count_shapes(const fs::path& path, const SourceOptions& options) {
+  if (format_of(path) != SourceFormat::ndjson) {
+    std::size_t count = 0;
+    std::vector<SourceProblem> ignored;
+    read_shape_file(path, options, [&](SourceShape&&) { ++count; }, ignored);
+    return count;
+  }
+  std::string text;
+  if (!read_file(path, text)) return 0;
+  std::size_t count = 0;
+  for_each_trimmed_line(text, [&](std::size_t, std::string_view line) { count += line.empty() ? 0 : 1; });
+  return count;
 }
 
 }  // namespace waymark::cli

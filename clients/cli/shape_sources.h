@@ -31,6 +31,9 @@ struct SourceShape {
   nlohmann::json geometry;  // a GeoJSON geometry object or a WKT / SVG path data string
   nlohmann::json metadata = nlohmann::json::object();
   std::string where;        // "parts/a.geojson: feature 3", "b.wkt: line 12", "c.svg: line 4, <path>"
+  // .ndjson: the input line itself when it holds nothing but "id", "geometry" and "metadata",
+  // so that it is sent as read instead of printed again from `geometry` and `metadata`.
+  std::string line;
 };
 
 struct SourceProblem {
@@ -58,5 +61,10 @@ struct SourceOptions {
 // at all is one problem. Time and memory are linear in the file's size.
 void read_shape_file(const std::filesystem::path& path, const SourceOptions& options,
                      const std::function<void(SourceShape&&)>& emit, std::vector<SourceProblem>& problems);
+
+// About how many shapes read_shape_file would emit, for progress: exact for the formats it
+// parses here; for .ndjson the count of non-blank lines (bad lines included), without parsing
+// them. 0 for a file that cannot be read.
+std::size_t count_shapes(const std::filesystem::path& path, const SourceOptions& options);
 
 }  // namespace waymark::cli

@@ -76,7 +76,8 @@ def write_inputs(folder):
         json.dump({"type": "FeatureCollection", "features": features}, f)
     for p in parts[:200]:
         expected[p["id"]] = (p["geometry"], dict(p["metadata"], sku=p["id"]))
-    # NDJSON in a subfolder; line 4 is broken JSON, line 7 has a bad geometry (an unclosed ring).
+    # NDJSON in a subfolder; line 4 is broken JSON, line 7 has a bad geometry (an unclosed ring),
+    # line 9 a member of its own.
     lines = []
     for i, p in enumerate(parts[200:300]):
         lines.append(json.dumps(p))
@@ -86,6 +87,8 @@ def write_inputs(folder):
     bad_ring = {"type": "Polygon", "coordinates": [[[0, 0], [1, 0], [1, 1]]]}
     lines[6] = json.dumps({"id": parts[206]["id"], "geometry": bad_ring})
     del expected[parts[206]["id"]]
+    # A member the server does not take is left out (other lines are sent as read).
+    lines[8] = json.dumps(dict(parts[208], note="from the old export"))
     with open(os.path.join(folder, "flanges", "more.ndjson"), "w") as f:
         f.write("\n".join(lines) + "\n")
     # WKT lines: id TAB wkt TAB metadata; a comment; a bare WKT line; a bad one.
