@@ -5,6 +5,7 @@
 #include <ctime>
 
 #include "sketch/geometry/formats.h"
+#include "sketch/geometry/plain_json.h"
 
 namespace waymark::server {
 namespace {
@@ -15,84 +16,37 @@ Status wrong_type(const std::string& where, const char* expected) {
   return invalid_argument(where + " must be " + expected, where);
 }
 
-// One past the end of the object or array that starts at `begin`, found by its brackets and
-// strings alone; whoever reads the value checks it.
-std::optional<std::size_t> end_of_container(std::string_view text, std::size_t begin) {
-  int depth = 0;
-  bool in_string = false;
-  for (std::size_t i = begin; i < text.size(); ++i) {
-    const char c = text[i];
-    if (in_string) {
-      if (c == '\\') {
-        ++i;
-      } else if (c == '"') {
-        in_string = false;
-      }
-    } else if (c == '"') {
-      in_string = true;
-    } else if (c == '{' || c == '[') {
-      ++depth;
-    } else if ((c == '}' || c == ']') && --depth == 0) {
-      return i + 1;
-    }
-  }
-  return std::nullopt;
-}
-
 }  // namespace
 
 std::optional<PlainBulkLine> read_plain_bulk_line(std::string_view line, const ShapeLimits& limits) {
-  std::size_t at = 0;
-  auto skip_spaces = [&] {
-    while (at < line.size() && (line[at] == ' ' || line[at] == '\t' || line[at] == '\n' || line[at] == '\r')) ++at;
-  };
-  auto take = [&](char c) {
-    if (at >= line.size() || line[at] != c) return false;
-    ++at;
-    return true;
-  };
-  auto read_plain_string = [&](std::optional<std::string_view>& out) {
-    if (!take('"')) return false;
-    const std::size_t begin = at;
-    while (at < line.size() && line[at] != '"') {
-      const unsigned char c = static_cast<unsigned char>(line[at]);
-      if (c < 0x20 || c > 0x7e || c == '\\') return false;
-      ++at;
-    }
-    if (at == line.size()) return false;
-    out = line.substr(begin, at - begin);
-    ++at;
-    return true;
-  };
-  auto read_object = [&](std::optional<std::string_view>& out) {
-    if (at >= line.size() || line[at] != '{') return false;
-    const std::optional<std::size_t> end = end_of_container(line, at);
-    if (!end) return false;
-    out = line.substr(at, *end - at);
-    at = *end;
-    return true;
-  };
+  PlainJsonCursor cursor(line);
   std::optional<std::string_view> id, geometry, metadata;
-  skip_spaces();
-  if (!take('{')) return std::nullopt;
+  // Reads the member's value into `slot` unless the member came before (left to the general
+  // reading) or its value is not in the plain form.
+  auto read_into = [&](std::optional<std::string_view>& slot, bool is_string) {
+    std::string_view value;
+    if (slot || !(is_string ? cursor.read_plain_string(value) : cursor.skip_container(value)) ||
+        (!is_string && value.front() != '{')) {
+      return false;
+    }
+    slot = value;
+    return true;
+  };
+  cursor.skip_spaces();
+  if (!cursor.take('{')) return std::nullopt;
   while (true) {
-    std::optional<std::string_view> key;
-    skip_spaces();
-    if (!read_plain_string(key)) return std::nullopt;
-    skip_spaces();
-    if (!take(':')) return std::nullopt;
-    skip_spaces();
-    // A member given twice is left to the general reading.
-    if (!((*key == "id" && !id && read_plain_string(id)) || (*key == "geometry" && !geometry && read_object(geometry)) ||
-          (*key == "metadata" && !metadata && read_object(metadata)))) {
+    std::string_view key;
+    if (!cursor.read_member_name(key)) return std::nullopt;
+    if (!((key == "id" && read_into(id, true)) || (key == "geometry" && read_into(geometry, false)) ||
+          (key == "metadata" && read_into(metadata, false)))) {
       return std::nullopt;
     }
-    skip_spaces();
-    if (take('}')) break;
-    if (!take(',')) return std::nullopt;
+    cursor.skip_spaces();
+    if (cursor.take('}')) break;
+    if (!cursor.take(',')) return std::nullopt;
   }
-  skip_spaces();
-  if (at != line.size() || !id || id->empty() || !geometry) return std::nullopt;
+  cursor.skip_spaces();
+  if (!cursor.at_end() || !id || id->empty() || !geometry) return std::nullopt;
   ParseOptions options;
   options.limits = limits;
   Result<Shape> shape = parse_geojson(*geometry, options);

@@ -1,12 +1,12 @@
 // GeoJSON geometry objects (RFC 7946 §3.1) and JSON point arrays, read and written.
 // Errors name the JSON path of the offending value, e.g. "$.coordinates[0][3][1]".
-#include <charconv>
 #include <cmath>
 #include <optional>
 #include <nlohmann/json.hpp>
 #include <string>
 
 #include "sketch/geometry/formats.h"
+#include "sketch/geometry/plain_json.h"
 #include "sketch/geometry/text_cursor.h"
 
 namespace waymark {
@@ -150,42 +150,31 @@ class JsonShapeReader {
 // The common case of parse_geojson read straight from the text, without a JSON document: an
 // object whose members are exactly "type" (Point, MultiPoint, LineString, MultiLineString,
 // Polygon or MultiPolygon) and "coordinates", in either order. It returns the shape only when
-// the general reader would return the same one (bit for bit: integer literals read as
-// nlohmann reads them, so "-0" is +0.0), and nullopt for anything else: other members or
-// types, escapes, 3D positions, numbers out of range, and every input the general reader
-// refuses, so that errors always come from the general reader. Bulk ingest spends most of its
-// time reading geometry (the general reader builds a node per number).
+// the general reader would return the same one, bit for bit (PlainJsonCursor reads numbers as
+// nlohmann does), and nullopt for anything else: other members or types, escapes, 3D
+// positions, numbers out of range, and every input the general reader refuses, so that errors
+// always come from the general reader.
 class PlainGeometryReader {
  public:
   PlainGeometryReader(std::string_view text, const ParseOptions& options) : text_(text), options_(options) {}
 
   std::optional<Shape> read() {
     std::string_view type, coordinates;
-    skip_spaces();
-    if (!take('{')) return std::nullopt;
+    PlainJsonCursor object(text_);
+    object.skip_spaces();
+    if (!object.take('{')) return std::nullopt;
     for (int member = 0; member < 2; ++member) {
-      skip_spaces();
       std::string_view key;
-      if (!read_plain_string(key)) return std::nullopt;
-      skip_spaces();
-      if (!take(':')) return std::nullopt;
-      skip_spaces();
-      if (key == "type" && type.empty()) {
-        if (!read_plain_string(type)) return std::nullopt;
-      } else if (key == "coordinates" && coordinates.empty()) {
-        const std::size_t begin = position_;
-        if (!skip_arrays_of_numbers()) return std::nullopt;
-        coordinates = text_.substr(begin, position_ - begin);
-      } else {
-        return std::nullopt;
-      }
-      skip_spaces();
-      if (!take(member == 0 ? ',' : '}')) return std::nullopt;
+      if (!object.read_member_name(key)) return std::nullopt;
+      const bool read_value = (key == "type" && type.empty() && object.read_plain_string(type)) ||
+                              (key == "coordinates" && coordinates.empty() && object.skip_container(coordinates));
+      object.skip_spaces();
+      if (!read_value || !object.take(member == 0 ? ',' : '}')) return std::nullopt;
     }
-    skip_spaces();
-    if (position_ != text_.size()) return std::nullopt;
-    text_ = coordinates;
-    position_ = 0;
+    object.skip_spaces();
+    if (!object.at_end()) return std::nullopt;
+    PlainJsonCursor cursor(coordinates);
+    cursor_ = &cursor;
     Shape shape;
     bool read = false;
     if (type == "Point" || type == "MultiPoint" || type == "LineString") {
@@ -204,7 +193,7 @@ class PlainGeometryReader {
       read = read_list([&] { return read_polygon(polygon++, shape); });
     }
     // An empty top-level array is an error of its own in the general reader.
-    if (!read || coordinates.size() < 2 || coordinates.find_first_not_of(" \t\n\r", 1) == coordinates.size() - 1 ||
+    if (!read || !cursor.at_end() || coordinates.find_first_not_of(" \t\n\r", 1) == coordinates.size() - 1 ||
         !validate(shape, options_.limits).is_ok()) {
       return std::nullopt;
     }
@@ -212,111 +201,35 @@ class PlainGeometryReader {
   }
 
  private:
-  bool take(char c) {
-    if (position_ < text_.size() && text_[position_] == c) {
-      ++position_;
-      return true;
-    }
-    return false;
-  }
-  void skip_spaces() {  // JSON whitespace only
-    while (position_ < text_.size() && (text_[position_] == ' ' || text_[position_] == '\t' ||
-                                        text_[position_] == '\n' || text_[position_] == '\r')) {
-      ++position_;
-    }
-  }
-  // A string of printable ASCII without escapes.
-  bool read_plain_string(std::string_view& out) {
-    if (!take('"')) return false;
-    const std::size_t begin = position_;
-    while (position_ < text_.size() && text_[position_] != '"') {
-      const unsigned char c = static_cast<unsigned char>(text_[position_]);
-      if (c < 0x20 || c > 0x7e || c == '\\') return false;
-      ++position_;
-    }
-    if (position_ == text_.size()) return false;
-    out = text_.substr(begin, position_ - begin);
-    ++position_;
-    return true;
-  }
-  // Passes over nested arrays whose leaves are number characters (checked when read).
-  bool skip_arrays_of_numbers() {
-    int depth = 0;
-    do {
-      if (position_ >= text_.size()) return false;
-      const char c = text_[position_++];
-      if (c == '[') {
-        ++depth;
-      } else if (c == ']') {
-        --depth;
-      } else if (!(c == ',' || c == ' ' || c == '\t' || c == '\n' || c == '\r' || c == '-' || c == '+' || c == '.' ||
-                   c == 'e' || c == 'E' || (c >= '0' && c <= '9'))) {
-        return false;
-      }
-    } while (depth > 0);
-    return true;
-  }
-  // A number in JSON's grammar, read as nlohmann reads it.
-  bool read_number(double& value) {
-    const std::size_t begin = position_;
-    take('-');
-    if (take('0')) {
-      // no leading zeros
-    } else if (position_ < text_.size() && text_[position_] >= '1' && text_[position_] <= '9') {
-      skip_digits();
-    } else {
-      return false;
-    }
-    bool integer = true;
-    if (take('.')) {
-      integer = false;
-      if (!skip_digits()) return false;
-    }
-    if (take('e') || take('E')) {
-      integer = false;
-      if (!take('+')) take('-');
-      if (!skip_digits()) return false;
-    }
-    const char* first = text_.data() + begin;
-    const auto [end, error] = std::from_chars(first, text_.data() + position_, value, std::chars_format::general);
-    if (error != std::errc() || end != text_.data() + position_ || !std::isfinite(value)) return false;
-    // nlohmann reads an integer literal as an integer: "-0" is 0, whose double is +0.0. Any
-    // other integer converts to the nearest double, as from_chars rounds its digits.
-    if (integer && value == 0) value = 0.0;
-    return true;
-  }
-  bool skip_digits() {
-    const std::size_t begin = position_;
-    while (position_ < text_.size() && text_[position_] >= '0' && text_[position_] <= '9') ++position_;
-    return position_ > begin;
-  }
   // '[' item (',' item)* ']' or '[' ']'.
   template <typename ReadItem>
   bool read_list(ReadItem read_item) {
-    skip_spaces();
-    if (!take('[')) return false;
-    skip_spaces();
-    if (take(']')) return true;
+    PlainJsonCursor& c = *cursor_;
+    c.skip_spaces();
+    if (!c.take('[')) return false;
+    c.skip_spaces();
+    if (c.take(']')) return true;
     while (true) {
       if (!read_item()) return false;
-      skip_spaces();
-      if (take(']')) return true;
-      if (!take(',')) return false;
-      skip_spaces();
+      c.skip_spaces();
+      if (c.take(']')) return true;
+      if (!c.take(',')) return false;
+      c.skip_spaces();
     }
   }
   bool read_position(Path& out) {
+    PlainJsonCursor& c = *cursor_;
     Point p;
-    skip_spaces();
-    if (!take('[')) return false;
-    skip_spaces();
-    if (!read_number(p.x)) return false;
-    skip_spaces();
-    if (!take(',')) return false;
-    skip_spaces();
-    if (!read_number(p.y)) return false;
-    skip_spaces();
-    if (!take(']') || ++vertices_read_ > options_.limits.max_vertices) return false;
+    c.skip_spaces();
+    if (!c.take('[')) return false;
+    c.skip_spaces();
+    if (!c.read_number(p.x)) return false;
+    c.skip_spaces();
+    if (!c.take(',')) return false;
+    c.skip_spaces();
+    if (!c.read_number(p.y)) return false;
+    c.skip_spaces();
+    if (!c.take(']') || ++vertices_read_ > options_.limits.max_vertices) return false;
     out.push_back(p);
     return true;
   }
@@ -338,8 +251,8 @@ class PlainGeometryReader {
   }
 
   std::string_view text_;
-  std::size_t position_ = 0;
   const ParseOptions& options_;
+  PlainJsonCursor* cursor_ = nullptr;  // over the coordinates, while read() runs
   std::size_t vertices_read_ = 0;
 };
 
