@@ -674,7 +674,12 @@ Status Collection::upsert(std::span<const ShapeRecord> batch) {
     group.swap(state.commit_queue);
     state.committing = true;
     queue_lock.unlock();
-    const std::vector<Status> results = state.commit(group);
+    std::vector<Status> results;
+    try {
+      results = state.commit(group);
+    } catch (const std::exception& error) {  // out of memory, say: the waiters must still wake
+      results.assign(group.size(), Status(StatusCode::internal, std::string("committing a batch: ") + error.what()));
+    }
     queue_lock.lock();
     for (std::size_t g = 0; g < group.size(); ++g) {
       group[g]->result = results[g];
