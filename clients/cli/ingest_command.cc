@@ -211,7 +211,12 @@ class Loader {
   void take_oldest() {
     InFlight oldest = std::move(in_flight_.front());
     in_flight_.pop_front();
-    Outcome outcome = oldest.outcome.get();
+    Outcome outcome;
+    try {
+      outcome = oldest.outcome.get();
+    } catch (const std::exception& error) {  // a reply of an unexpected shape, say
+      outcome.status = Status(StatusCode::failed_precondition, std::string("reading the server's reply: ") + error.what());
+    }
     idle_.push_back(oldest.connection);
     accepted_ += outcome.accepted;
     rejected_ += outcome.rejected;
