@@ -141,12 +141,7 @@ Outcome send_batch(HttpClient& client, const std::string& target, std::size_t re
             {line >= 1 && line <= batch.where.size() ? batch.where[line - 1] : "batch line " + std::to_string(line),
              reason});
       }
-      if (body.contains("error")) {
-        outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
-      } else if (reply->status < 200 || reply->status >= 300) {
-        outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
-      }
-      return outcome;
+      if (!body.contains("error") && reply->status >= 200 && reply->status < 300) return outcome;
     }
     outcome.status = Status(StatusCode::failed_precondition, describe_error_reply(*reply));
     return outcome;
