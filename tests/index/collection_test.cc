@@ -512,3 +512,64 @@ TEST_CASE("DamagedTableFileStopsTheOpen") {
   INFO(reopened.status().to_string());
   CHECK(reopened.status().message().find("Corruption") != std::string::npos);
 }
+
+// An open reads the store in id ranges side by side, cut at the table files' first and last
+// record ids (index/collection.cc, read_store_in_ranges). Here the store is rewritten into
+// many small table files so that there are cuts to take: every shape must come back once,
+// under its own label and vector, with none lost or doubled at a cut.
+TEST_CASE("OpenReadsAStoreOfManyTableFilesInRanges", "[concurrency]") {
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(2000, 21);
+  QueryOptions exact;
+  exact.exact = true;
+  std::vector<QueryAnswer> before;
+  {
+    auto collection = Collection::create(directory.path.string(), settings_with(16));
+    REQUIRE(collection.is_ok());
+    for (std::size_t start = 0; start < records.size(); start += 250) {
+      REQUIRE((*collection)->upsert(std::span(records).subspan(start, 250)).is_ok());
+    }
+    for (std::size_t q = 0; q < records.size(); q += 400) before.push_back(*(*collection)->nearest(records[q].shape, exact));
+  }
+  {  // Table files of about 16 KB, each a contiguous key range (compaction output is cut by size).
+    rocksdb::Options options;
+    options.target_file_size_base = 16 << 10;
+    rocksdb::DB* raw = nullptr;
+    REQUIRE(rocksdb::DB::Open(options, directory.path.string(), &raw).ok());
+    std::unique_ptr<rocksdb::DB> database(raw);
+    REQUIRE(database->CompactRange(rocksdb::CompactRangeOptions(), nullptr, nullptr).ok());
+    std::vector<rocksdb::LiveFileMetaData> files;
+    database->GetLiveFilesMetaData(&files);
+    const auto record_files = std::count_if(files.begin(), files.end(), [](const rocksdb::LiveFileMetaData& file) {
+      return file.smallestkey.starts_with("s/") && file.largestkey.starts_with("s/");
+    });
+    REQUIRE(record_files >= 8);  // else the open below would read one range and test nothing new
+    REQUIRE(database->Close().ok());
+  }
+  Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path.string());
+  REQUIRE(reopened.is_ok());
+  Collection& collection = **reopened;
+  CHECK(collection.size() == records.size());
+  for (std::size_t q = 0; q < before.size(); ++q) require_same(*collection.nearest(records[q * 400].shape, exact), before[q]);
+  QueryOptions two = exact;
+  two.k = 2;
+  // Each shape is its own nearest, at zero up to the framing's rounding (about 1e-17 here), and
+  // only once: a shape read in two ranges would also be its own second nearest.
+  std::size_t found_once = 0;
+  for (const ShapeRecord& record : records) {
+    const QueryAnswer answer = *collection.nearest(record.shape, two);
+    found_once += answer.hits.size() == 2 && answer.hits[0].id == record.id && answer.hits[0].distance < 1e-12 &&
+                  answer.hits[0].sketch_distance == 0 && answer.hits[1].id != record.id;
+  }
+  CHECK(found_once == records.size());
+  // The id map came back too: a delete finds its shape, and a new shape gets a label of its own.
+  REQUIRE(collection.remove(std::vector<std::string>{records[1999].id}).is_ok());
+  const ShapeRecord added{"added-after-open", records[7].shape, "{}"};
+  REQUIRE(collection.upsert(std::vector<ShapeRecord>{added}).is_ok());
+  CHECK(collection.size() == records.size());
+  const QueryAnswer twins = *collection.nearest(records[7].shape, two);
+  REQUIRE(twins.hits.size() == 2);
+  CHECK(twins.hits[0].id == "added-after-open");  // the same shape, so tied: the smaller id first
+  CHECK(twins.hits[1].id == records[7].id);
+  CHECK(collection.nearest(records[1999].shape, two)->hits[0].id != records[1999].id);
+}

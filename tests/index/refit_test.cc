@@ -228,3 +228,56 @@ TEST_CASE("FormatTwoStoreIsUpgradedOnOpen") {
     require_exact_equals_full_scan(**collection, records, 50);
   }
 }
+
+// open() deletes the sketches of every other landmark generation (a crashed refit's leftovers,
+// index/STORE_FORMAT.md) and writes nothing when there are none: each write at open would
+// leave one more small table file behind (index/collection.cc).
+TEST_CASE("OpenRemovesLeftoverSketchesAndWritesNothingWithoutThem") {
+  TemporaryDirectory directory;
+  const std::vector<ShapeRecord> records = synthetic_records(50, 51);
+  const CollectionSettings settings = settings_with(16);
+  const std::uint64_t generation = settings.landmarks.generation;
+  {
+    auto collection = Collection::create(directory.path, settings);
+    REQUIRE(collection.is_ok());
+    REQUIRE((*collection)->upsert(records).is_ok());
+  }
+  auto sketch_key = [](std::uint64_t g, const std::string& id) {
+    char hex[17];
+    std::snprintf(hex, sizeof hex, "%016llx", static_cast<unsigned long long>(g));
+    return "v/" + std::string(hex) + "/" + id;
+  };
+  auto with_raw_store = [&](const auto& use) {
+    rocksdb::DB* raw = nullptr;
+    REQUIRE(rocksdb::DB::Open(rocksdb::Options(), directory.path.string(), &raw).ok());
+    std::unique_ptr<rocksdb::DB> database(raw);
+    use(*database);
+    REQUIRE(database->Close().ok());
+  };
+  with_raw_store([&](rocksdb::DB& database) {
+    REQUIRE(database.Put(rocksdb::WriteOptions(), sketch_key(generation + 1, records[0].id), "leftover").ok());
+    if (generation > 0) {
+      REQUIRE(database.Put(rocksdb::WriteOptions(), sketch_key(generation - 1, records[1].id), "leftover").ok());
+    }
+  });
+  for (int opening = 0; opening < 2; ++opening) {
+    std::uint64_t sequence_before = 0;
+    with_raw_store([&](rocksdb::DB& database) { sequence_before = database.GetLatestSequenceNumber(); });
+    {
+      Result<std::unique_ptr<Collection>> collection = Collection::open(directory.path);
+      REQUIRE(collection.is_ok());
+      CHECK((*collection)->size() == records.size());
+    }
+    with_raw_store([&](rocksdb::DB& database) {
+      std::size_t sketches = 0, others = 0;
+      std::unique_ptr<rocksdb::Iterator> keys(database.NewIterator(rocksdb::ReadOptions()));
+      for (keys->Seek("v/"); keys->Valid() && keys->key().starts_with("v/"); keys->Next()) {
+        ++(keys->key().starts_with(sketch_key(generation, "")) ? sketches : others);
+      }
+      CHECK(sketches == records.size());
+      CHECK(others == 0);
+      // The first open wrote the deletion; the second had nothing to write.
+      if (opening == 1) CHECK(database.GetLatestSequenceNumber() == sequence_before);
+    });
+  }
+}
