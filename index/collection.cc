@@ -398,8 +398,7 @@ struct OpenedShape {
 // or the first damage found there.
 struct StoredRange {
   std::vector<OpenedShape> shapes;
-  std::vector<std::int64_t> labels;  // of each shape, in that order
-  std::vector<float> vectors;        // Generation::append_index_vector of each, in that order
+  std::vector<float> vectors;  // Generation::append_index_vector of each, in that order
   Status failure;
 };
 
@@ -447,7 +446,6 @@ StoredRange read_store_range(rocksdb::DB& database, const rocksdb::Snapshot* sna
     }
     sketches->Next();
     generation.append_index_vector(sketch->values, stored->shape, settings.frame, out.vectors);
-    out.labels.push_back(stored->label);
     out.shapes.push_back({id, stored->label, ResidentCopy::of(stored->shape, settings.frame)});
   }
   out.failure = from_rocksdb(records->status(), "scanning records");
@@ -716,14 +714,19 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   for (const StoredRange& range : ranges) {
     if (!range.failure.is_ok()) return range.failure;  // the first in key order
   }
-  // The exhaustive index's rows are put together beside the id maps: neither reads what the
-  // other moves. Only the exhaustive index: the approximate one is restored from its snapshot
-  // (or built) from this index, so copying every vector into its fresh part would be undone.
+  // The exhaustive index's rows are put together beside the id maps: neither touches what the
+  // other moves (the vectors; the float copies), and both only read the rest. Only the
+  // exhaustive index: the approximate one is restored from its snapshot (or built) from this
+  // index, so copying every vector into its fresh part would be undone.
   auto add_rows = [&ranges, &generation]() -> Result<VectorIndex::Contents> {
-    VectorIndex::Contents rows{std::move(ranges.front().labels), std::move(ranges.front().vectors)};
-    for (std::size_t r = 1; r < ranges.size(); ++r) {
-      rows.labels.insert(rows.labels.end(), ranges[r].labels.begin(), ranges[r].labels.end());
-      rows.vectors.insert(rows.vectors.end(), ranges[r].vectors.begin(), ranges[r].vectors.end());
+    VectorIndex::Contents rows{{}, std::move(ranges.front().vectors)};
+    std::size_t shapes = 0;
+    for (const StoredRange& range : ranges) shapes += range.shapes.size();
+    rows.labels.reserve(shapes);
+    rows.vectors.reserve(shapes * generation.dimension());
+    for (std::size_t r = 0; r < ranges.size(); ++r) {
+      for (const OpenedShape& shape : ranges[r].shapes) rows.labels.push_back(shape.label);
+      if (r > 0) rows.vectors.insert(rows.vectors.end(), ranges[r].vectors.begin(), ranges[r].vectors.end());
     }
     if (Status s = generation.index.add(rows.labels, rows.vectors); !s.is_ok()) return s;
     return rows;
