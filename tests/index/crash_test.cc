@@ -84,6 +84,7 @@ void kill_rounds(const std::string& mode) {
       CHECK(last_acknowledged == next);
       continue;
     }
+    INFO("round " << round << ": " << (collection ? std::string("opened") : collection.status().to_string()));
     REQUIRE(collection.is_ok());
     const std::size_t stored = (*collection)->size();
     INFO("round " << round << ": acknowledged up to " << last_acknowledged << ", stored " << stored);
