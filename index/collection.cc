@@ -391,7 +391,6 @@ Result<bool> has_stale_sketches(rocksdb::DB& database, std::uint64_t current) {
 struct OpenedShape {
   std::string id;
   std::int64_t label;
-  ResidentCopy copy;
 };
 
 // The shapes whose ids lie in [first_id, end_id) (empty: no bound) with their index vectors,
@@ -420,18 +419,25 @@ StoredRange read_store_range(rocksdb::DB& database, const rocksdb::Snapshot* sna
   const std::uint64_t number = generation.number();
   const std::string prefix = sketch_prefix(number);
   const std::string end_key = kShapePrefix + end_id;
+  const std::size_t shape_prefix_length = std::strlen(kShapePrefix);
+  // key == prefix + id, without building that string for each of a million records.
+  auto is_key_of = [](const rocksdb::Slice& key, const std::string& prefix, const std::string& id) {
+    return key.size() == prefix.size() + id.size() && key.starts_with(prefix) &&
+           std::memcmp(key.data() + prefix.size(), id.data(), id.size()) == 0;
+  };
   sketches->Seek(prefix + first_id);
   auto in_range = [&](const rocksdb::Slice& key) {
     return key.starts_with(kShapePrefix) && (end_id.empty() || key.compare(end_key) < 0);
   };
   for (records->Seek(kShapePrefix + first_id); records->Valid() && in_range(records->key()); records->Next()) {
-    const std::string id = records->key().ToString().substr(std::strlen(kShapePrefix));
+    const rocksdb::Slice record_key = records->key();
+    const std::string id(record_key.data() + shape_prefix_length, record_key.size() - shape_prefix_length);
     Result<StoredShape> stored = decode_record(id, records->value().ToStringView(), settings.limits);
     if (!stored) {
       out.failure = stored.status();
       return out;
     }
-    if (!sketches->Valid() || sketches->key() != prefix + id) {
+    if (!sketches->Valid() || !is_key_of(sketches->key(), prefix, id)) {
       out.failure = Status(StatusCode::data_loss, "store: shape '" + id + "' has no sketch of landmark generation " +
                                                       std::to_string(number));
       return out;
@@ -446,7 +452,7 @@ StoredRange read_store_range(rocksdb::DB& database, const rocksdb::Snapshot* sna
     }
     sketches->Next();
     generation.append_index_vector(sketch->values, stored->shape, settings.frame, out.vectors);
-    out.shapes.push_back({id, stored->label, ResidentCopy::of(stored->shape, settings.frame)});
+    out.shapes.push_back({id, stored->label});
   }
   out.failure = from_rocksdb(records->status(), "scanning records");
   if (out.failure.is_ok()) out.failure = from_rocksdb(sketches->status(), "scanning sketches");
@@ -478,12 +484,10 @@ std::vector<std::string> range_cuts(rocksdb::DB& database, std::size_t parts) {
 }
 
 // Reads every stored shape of `generation`, in id ranges read side by side, one per core (up
-// to 4): decoding records, making float copies and index vectors is most of an open's work,
-// and a single reader left the second core of a 2-core machine idle (1M shapes, graph index:
-// 87 % of the open's samples on the reading thread; the open took 7.6–8.5 s, 4.0–5.9 s in
-// ranges). The ranges are returned in id order. Should the float copies' capacity run out
-// during the open, which shapes got copies depends on the ranges' timing: copies only let
-// queries refuse candidates sooner, they never change an answer.
+// to 4): decoding records and making index vectors is most of an open's work, and a single
+// reader left the second core of a 2-core machine idle (1M shapes, graph index: 87 % of the
+// open's samples on the reading thread; the open took 7.6–8.5 s, 4.0–5.9 s in ranges). The
+// ranges are returned in id order.
 std::vector<StoredRange> read_store_in_ranges(rocksdb::DB& database, const rocksdb::Snapshot* snapshot,
                                               const CollectionSettings& settings, const Generation& generation) {
   const std::size_t parts = std::clamp<std::size_t>(std::thread::hardware_concurrency(), 1, 4);
@@ -501,26 +505,78 @@ std::vector<StoredRange> read_store_in_ranges(rocksdb::DB& database, const rocks
   return ranges;
 }
 
-// Fills the state's id maps from the ranges read (moving the float copies out of them), the
-// two maps side by side: each takes a node allocation and a hash per shape.
-void fill_maps(Collection::State& state, std::vector<StoredRange>& ranges) {
+// Fills the state's id maps from the ranges read, the two maps side by side: each takes a node
+// allocation and a hash per shape. The float copies come later (make_copies_after_open).
+void fill_maps(Collection::State& state, const std::vector<StoredRange>& ranges) {
   auto fill_labels = [&] {
     for (const StoredRange& range : ranges) {
       for (const OpenedShape& shape : range.shapes) state.label_of_id.emplace(shape.id, shape.label);
     }
   };
   std::future<void> labels_filled = on_own_thread(fill_labels);
-  for (StoredRange& range : ranges) {
-    for (OpenedShape& shape : range.shapes) {
+  for (const StoredRange& range : ranges) {
+    for (const OpenedShape& shape : range.shapes) {
       state.next_label = std::max(state.next_label, shape.label + 1);
       // Reads shape.id beside fill_labels, which only reads it too.
-      state.shape_of_label.emplace(shape.label, Collection::State::Labelled{shape.id, std::move(shape.copy)});
+      state.shape_of_label.emplace(shape.label, Collection::State::Labelled{shape.id, ResidentCopy()});
     }
   }
   labels_filled.get();
 }
 
+// Gives each copy to its label when that label is still stored, and drops the others (their
+// shapes were replaced or removed since the copies' records were read). A label names one
+// version of one record and is never reused, so the copy is of the shape the label stands
+// for. A label that has a copy already (made by the write that stored it) keeps it.
+void give_copies(Collection::State& state, std::vector<std::pair<std::int64_t, ResidentCopy>>& made) {
+  {
+    std::unique_lock lock(state.labels_mutex);
+    for (auto& [label, copy] : made) {
+      auto found = state.shape_of_label.find(label);
+      if (found != state.shape_of_label.end() && found->second.copy.empty()) found->second.copy = std::move(copy);
+    }
+  }
+  made.clear();  // copies not given return their bytes to the capacity
+}
+
+// The float copies of the shapes that open() found, made after it on a thread of its own.
+// Making them was a quarter of a restart (1M shapes, graph index: 3.70 s without copies, 5.19 s
+// with, fresh processes, 2026-12-03), and they are not needed to answer a query: until a shape
+// has its copy, its candidates are read from the store, for the same answer. The records are
+// read once more, in id order from one snapshot, and the copies are handed over in groups
+// (each group under the maps' lock for a few hundred map look-ups). Stops early when the
+// collection closes, when no copy capacity is left at all, or at a store error (the shapes
+// not reached then have no copy; nothing else depends on them).
+void make_copies_after_open(Collection::State& state) {
+  constexpr std::size_t kCopiesPerGroup = 512;
+  rocksdb::ReadOptions reading;
+  reading.fill_cache = false;  // read once: through the block cache it would only churn it
+  reading.readahead_size = 4 << 20;
+  std::unique_ptr<rocksdb::Iterator> records(state.database->NewIterator(reading));
+  const std::size_t prefix_length = std::strlen(kShapePrefix);
+  std::vector<std::pair<std::int64_t, ResidentCopy>> made;
+  made.reserve(kCopiesPerGroup);
+  for (records->Seek(kShapePrefix); records->Valid() && records->key().starts_with(kShapePrefix); records->Next()) {
+    if (state.stop_copying.load(std::memory_order_relaxed)) break;
+    if (resident_copy_bytes() >= resident_copy_capacity()) break;
+    const rocksdb::Slice key = records->key();
+    Result<StoredShape> stored = decode_record(std::string(key.data() + prefix_length, key.size() - prefix_length),
+                                               records->value().ToStringView(), state.settings.limits);
+    if (!stored) break;
+    ResidentCopy copy = ResidentCopy::of(stored->shape, state.settings.frame);
+    if (copy.empty()) continue;
+    made.emplace_back(stored->label, std::move(copy));
+    if (made.size() == kCopiesPerGroup) give_copies(state, made);
+  }
+  give_copies(state, made);
+}
+
 }  // namespace
+
+void Collection::wait_for_resident_copies() const {
+  const std::shared_future<void> copying = state_->copying;  // a copy of its own: waits may run side by side
+  if (copying.valid()) copying.wait();
+}
 
 Collection::Collection(std::unique_ptr<State> state) : state_(std::move(state)) {
   if (state_->settings.index_kind == IndexKind::exhaustive) return;
@@ -548,6 +604,8 @@ void Collection::State::wake_builder() {
 }
 
 Collection::~Collection() {
+  state_->stop_copying = true;
+  wait_for_resident_copies();
   if (!state_->builder.joinable()) return;
   {
     std::lock_guard lock(state_->builder_mutex);
@@ -737,6 +795,10 @@ Result<std::unique_ptr<Collection>> Collection::open(const std::string& director
   ranges.clear();
   if (!rows) return rows.status();
   if (generation.approximate) restore_approximate_index(*state, snapshot_read.get(), *rows);
+  if (!state->shape_of_label.empty() && resident_copy_capacity() > 0) {
+    State* shared = state.get();  // outlives the copying: ~Collection stops it and waits
+    state->copying = on_own_thread([shared] { make_copies_after_open(*shared); }).share();
+  }
   return std::unique_ptr<Collection>(new Collection(std::move(state)));
 }
 
@@ -993,6 +1055,9 @@ CollectionStatistics Collection::statistics() const {
     std::size_t id_bytes = 0;
     for (const auto& [id, label] : state_->label_of_id) id_bytes += id.size();
     for (const auto& [label, labelled] : state_->shape_of_label) statistics.resident_copy_bytes += labelled.copy.bytes();
+    const std::shared_future<void> copying = state_->copying;
+    statistics.making_resident_copies =
+        copying.valid() && copying.wait_for(std::chrono::seconds(0)) != std::future_status::ready;
     // Two hash maps (id ↔ label): key, value and about two pointers of node and bucket each.
     const Generation& generation = *state_->current;
     if (generation.approximate) statistics.approximate = generation.approximate->status();

@@ -142,6 +142,9 @@ struct CollectionStatistics {
   ApproximateIndexStatus approximate;  // all zero for exhaustive collections
   std::size_t index_bytes = 0;          // vector index and id maps, in memory (estimate)
   std::size_t resident_copy_bytes = 0;  // float copies of the shapes, in memory (resident_copy_bytes())
+  // True while the float copies of the shapes that open() found are still being made (after
+  // it, on a thread of their own): queries meanwhile give the same answers with more store reads.
+  bool making_resident_copies = false;
   std::size_t store_bytes = 0;          // RocksDB files on disk and memtables (estimate)
   std::size_t memtable_bytes = 0;       // of which memtables: writes not yet flushed, in memory
   std::size_t table_reader_bytes = 0;   // RocksDB's in-memory index and filter blocks of its files
@@ -168,7 +171,10 @@ class Collection {
   // Atomic: built in "<directory>.creating" and renamed into place.
   static Result<std::unique_ptr<Collection>> create(const std::string& directory, const CollectionSettings& settings);
   // Opens an existing collection and rebuilds its vector index from the stored sketches.
-  // not_found when the directory holds no collection (nothing is created then).
+  // not_found when the directory holds no collection (nothing is created then). The float
+  // copies of the stored shapes (index/resident_copy.h) are made after it returns, on a thread
+  // of their own: queries can run at once, with the same answers (statistics() says when the
+  // copies are done; wait_for_resident_copies() waits for them).
   static Result<std::unique_ptr<Collection>> open(const std::string& directory,
                                                   const ApproximateIndexSettings& approximate = {});
   ~Collection();
@@ -205,6 +211,10 @@ class Collection {
   // Graph and partitioned collections build their approximate index on a background thread;
   // this builds it now if one is due and waits (tests, benchmarks). No-op for exhaustive ones.
   Status build_approximate_index_now();
+  // Returns once the float copies that open() started making are made (or given up at the
+  // copy capacity): benchmarks and tests that count store reads or copy bytes need them in
+  // place. At once for a created collection and when the capacity is 0.
+  void wait_for_resident_copies() const;
   // Rewrites the store's files now (a flush, then a compaction of every key): the space of
   // replaced and deleted shapes is reclaimed at once instead of whenever RocksDB gets to it.
   // Takes time in proportion to the store; reads and writes go on meanwhile. A crash part-way

@@ -7,6 +7,7 @@
 
 #include <atomic>
 #include <condition_variable>
+#include <future>
 #include <memory>
 #include <mutex>
 #include <optional>
@@ -124,6 +125,12 @@ struct Collection::State {
   void wake_builder();             // after a write
   std::mutex build_mutex;     // one build at a time (the thread, or build_approximate_index_now)
   Status build_approximate_index_if_due();  // and writes its snapshot
+  // Float copies of the shapes an open found are made after it, on a thread of their own
+  // (make_copies_after_open in collection.cc), so that a restart serves queries without
+  // waiting for them; until a shape has its copy, its candidates are read from the store.
+  // Set by the destructor to end that work early; `copying` is ready once it has ended.
+  std::atomic<bool> stop_copying{false};
+  std::shared_future<void> copying;
   std::string approximate_snapshot_path() const { return directory + "/approximate-index.snapshot"; }
 
   std::shared_ptr<Generation> current_generation() const {

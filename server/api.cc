@@ -261,6 +261,7 @@ Json describe(const std::string& name, const Collection& collection) {
            {{"shapes", statistics.shape_count},
             {"index_bytes", statistics.index_bytes},
             {"resident_copy_bytes", statistics.resident_copy_bytes},
+            {"making_resident_copies", statistics.making_resident_copies},
             {"store_bytes", statistics.store_bytes},
             {"last_write", statistics.last_write_unix_ms == 0 ? Json(nullptr) : Json(iso_time(statistics.last_write_unix_ms))},
             {"approximate_index", approximate_json(settings.index_kind, statistics.approximate)}}}};

@@ -434,6 +434,7 @@ TEST_CASE("ConcurrentUpsertsOfSharedIdsLeaveOneConsistentRecordEach", "[concurre
   Result<std::unique_ptr<Collection>> reopened = Collection::open(directory.path);
   REQUIRE(reopened.is_ok());
   check_consistent(**reopened);
+  (*reopened)->wait_for_resident_copies();
   const CollectionStatistics rebuilt = (*reopened)->statistics();
   CHECK(live.resident_copy_bytes == rebuilt.resident_copy_bytes);
 }

@@ -87,7 +87,7 @@ void kill_rounds(const std::string& mode) {
     INFO("round " << round << ": " << (collection ? std::string("opened") : collection.status().to_string()));
     REQUIRE(collection.is_ok());
     const std::size_t stored = (*collection)->size();
-    INFO("round " << round << ": acknowledged up to " << last_acknowledged << ", stored " << stored);
+    INFO("acknowledged up to " << last_acknowledged << ", stored " << stored);
     CHECK(stored >= last_acknowledged);   // nothing acknowledged is lost
     CHECK(stored % 200 == 0);              // whole batches only
     const std::uint64_t generation = (*collection)->settings().landmarks.generation;

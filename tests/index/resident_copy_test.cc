@@ -1,10 +1,13 @@
 // Float copies of stored shapes (index/resident_copy.h): their displacement bound, their
 // refusals of unrepresentable shapes, the shared capacity, and — the property queries rely on —
-// that refusing candidates on them changes no answer and saves store reads.
+// that refusing candidates on them changes no answer and saves store reads, also when they are
+// made after an open while writes go on.
 #include <catch2/catch.hpp>
 
+#include <atomic>
 #include <cmath>
 #include <limits>
+#include <thread>
 
 #include "index/collection.h"
 #include "index/resident_copy.h"
@@ -124,6 +127,7 @@ TEST_CASE("RefusingOnFloatCopiesChangesNoAnswerAndSavesStoreReads") {
     REQUIRE(opened.is_ok());
     const Collection& collection = **opened;
     REQUIRE(collection.statistics().approximate.snapshot == "loaded");
+    collection.wait_for_resident_copies();  // made after the open
     Run run;
     run.copy_bytes = collection.statistics().resident_copy_bytes;
     SeededRandom random(72);
@@ -168,4 +172,78 @@ TEST_CASE("RefusingOnFloatCopiesChangesNoAnswerAndSavesStoreReads") {
   // (1,952 reads against 3,858 when written).
   INFO("store reads with copies " << with.store_reads << ", without " << without.store_reads);
   CHECK(with.store_reads * 4 < without.store_reads * 3);
+}
+
+TEST_CASE("CopiesMadeAfterAnOpenReachEveryStoredShapeAndChangeNoAnswer", "[concurrency]") {
+  CapacityGuard guard;
+  set_resident_copy_capacity(std::size_t{1} << 30);
+  TemporaryDirectory directory;
+  std::vector<ShapeRecord> records = synthetic_records(12000, 81);
+  filled_collection(directory, records);  // closed again at once
+  Result<std::unique_ptr<Collection>> opened = Collection::open(directory.path);
+  REQUIRE(opened.is_ok());
+  Collection& collection = **opened;
+  INFO("copies still being made right after the open: " << collection.statistics().making_resident_copies);
+  // While the copies are made: queries, and writes that give a third of the shapes a new
+  // version (a new label, whose copy the write makes) and remove a sixth. A copy of a version
+  // read at the open must go to no label but that version's.
+  SeededRandom random(82);
+  std::atomic<int> failed_queries{0};
+  std::thread querying([&] {
+    for (int q = 0; q < 30; ++q) {
+      QueryOptions options;
+      options.metric = q % 2 == 0 ? Metric::hausdorff : Metric::frechet;
+      if (!collection.nearest(records[q * 97].shape, options).is_ok()) ++failed_queries;
+    }
+  });
+  std::vector<bool> removed(records.size(), false);
+  std::vector<ShapeRecord> batch;
+  std::vector<std::string> removals;
+  for (std::size_t i = 0; i < records.size(); ++i) {
+    if (i % 3 == 0) {
+      records[i].shape = jittered(records[(i + 1) % records.size()].shape, random, 0.1);
+      batch.push_back(records[i]);
+    } else if (i % 6 == 1) {
+      removed[i] = true;
+      removals.push_back(records[i].id);
+    }
+    if (batch.size() == 400) {
+      REQUIRE(collection.upsert(batch).is_ok());
+      batch.clear();
+    }
+  }
+  REQUIRE(collection.upsert(batch).is_ok());
+  REQUIRE(collection.remove(removals).is_ok());
+  querying.join();
+  CHECK(failed_queries == 0);
+  collection.wait_for_resident_copies();
+  const CollectionStatistics statistics = collection.statistics();
+  CHECK_FALSE(statistics.making_resident_copies);
+  // One copy per stored shape, of its stored version: the bytes of copies made here of them.
+  std::size_t expected_bytes = 0, stored = 0;
+  for (std::size_t i = 0; i < records.size(); ++i) {
+    if (removed[i]) continue;
+    ++stored;
+    expected_bytes += ResidentCopy::of(records[i].shape, Frame::unit).bytes();
+  }
+  REQUIRE(statistics.shape_count == stored);
+  CHECK(statistics.resident_copy_bytes == expected_bytes);
+  // Exact answers near replaced and untouched shapes, refused on these copies, are the full scan's.
+  for (std::size_t i = 0; i < 24; ++i) {
+    const std::size_t n = (i * 499) % records.size();
+    if (removed[n]) continue;
+    const Shape query = jittered(records[n].shape, random, 0.02);
+    for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
+      QueryOptions options;
+      options.metric = metric;
+      options.exact = true;
+      Result<QueryAnswer> exact = collection.nearest(query, options);
+      Result<QueryAnswer> scanned = collection.nearest_by_full_scan(query, options);
+      REQUIRE(exact.is_ok());
+      REQUIRE(scanned.is_ok());
+      INFO("query near shape " << n << ", " << metric_name(metric));
+      CHECK(exact->certified);
+      require_same(*exact, *scanned);
+    }
+  }
 }

@@ -165,6 +165,13 @@ def main():
         check(shapes_snapshot(server, "parts") == before, "restart: every shape and its metadata read back")
         _, described = server.call("GET", "/v1/collections/parts")
         check(described["landmarks"]["generation"] == 2, f"restart: refitted generation kept: {described['landmarks']}")
+        # The float copies of the stored shapes are made after the start, in the background.
+        deadline = time.time() + 20
+        while described["stats"].get("making_resident_copies") is True and time.time() < deadline:
+            time.sleep(0.05)
+            _, described = server.call("GET", "/v1/collections/parts")
+        check(described["stats"].get("making_resident_copies") is False and described["stats"]["resident_copy_bytes"] > 0,
+              f"restart: float copies made in the background: {described['stats']}")
         _, answer_after = server.call("POST", "/v1/collections/parts/nearest", query)
         check([(r["id"], r["distance"]) for r in answer_after["results"]] ==
               [(r["id"], r["distance"]) for r in answer_before["results"]], "restart: same answer")
