@@ -14,6 +14,8 @@
 // row each (0: the default, 40·k; 100·k for a partitioned index), to show what recall each buys.
 // A non-exhaustive run times its restarts in child processes: the same program with
 // `--open DIRECTORY COPY_CAPACITY`, which opens the collection, prints the seconds and exits.
+// With WAYMARK_BENCHMARK_KEEP set in the environment the collection is left in the temporary
+// folder (it says where), e.g. to time or profile `--open` on it again.
 // WRITERS threads call upsert() at once, each with its own batches, as concurrent clients of a
 // server do (concurrent batches share a synced write: Collection::upsert).
 #include <algorithm>
@@ -321,7 +323,11 @@ int main(int argc, char** argv) {
     std::printf("landmark refit (fit, re-sketch every shape, switch): %.2f s, %.0f shapes/s\n", seconds,
                 static_cast<double>(progress.shapes_done) / seconds);
   }
-  std::error_code ignored;
-  std::filesystem::remove_all(directory, ignored);
+  if (std::getenv("WAYMARK_BENCHMARK_KEEP") != nullptr) {
+    std::printf("collection kept in %s\n", directory.string().c_str());
+  } else {
+    std::error_code ignored;
+    std::filesystem::remove_all(directory, ignored);
+  }
   return 0;
 }

@@ -16,11 +16,22 @@ namespace {
 
 constexpr const char* kToken = "fuzz-write-token-0123456789";
 
+// The catalog's folder, removed when the process exits (each fuzzing or replay process makes its
+// own; left behind, every ctest run added one to the temporary folder).
+struct TemporaryCatalogFolder {
+  std::filesystem::path path =
+      std::filesystem::temp_directory_path() / ("waymark-request-fuzz-" + std::to_string(::getpid()));
+  ~TemporaryCatalogFolder() {
+    std::error_code ignored;
+    std::filesystem::remove_all(path, ignored);
+  }
+};
+
 waymark::server::Api& api() {
   static waymark::server::Metrics metrics;
+  static const TemporaryCatalogFolder folder;
   static waymark::server::Api* instance = [] {
-    const std::filesystem::path directory =
-        std::filesystem::temp_directory_path() / ("waymark-request-fuzz-" + std::to_string(::getpid()));
+    const std::filesystem::path& directory = folder.path;
     std::filesystem::remove_all(directory);
     waymark::server::ServerConfig config;
     config.data_directory = directory.string();
