@@ -254,9 +254,11 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
   // Fresh vectors, nearest by L∞; a label can be in both only while a build is swapping in.
   Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query, root_weights_.size());
   if (!fresh) return fresh.status();
+  const std::span<const Neighbour> fresh_nearest = fresh->next(count);
+  if (fresh_nearest.empty()) return out;  // as between builds mostly: no set of labels to make
   std::unordered_set<std::int64_t> seen;
   for (const Neighbour& n : out) seen.insert(n.label);
-  for (const Neighbour& n : fresh->next(count)) {
+  for (const Neighbour& n : fresh_nearest) {
     if (seen.insert(n.label).second) out.push_back(n);
   }
   return out;

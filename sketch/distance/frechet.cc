@@ -204,12 +204,15 @@ bool search_candidates(std::vector<Candidate>& candidates, double& lo, Candidate
   return found;
 }
 
-Path without_repeats(const Path& path) {
+// The curve of a part: its vertices without consecutive repeats, and for a ring its first
+// vertex again at the end. One allocation: curves are made for every candidate a query draws.
+Path curve_of_part(const Path& part, bool ring) {
   Path out;
-  out.reserve(path.size());
-  for (const Point& v : path) {
+  out.reserve(part.size() + (ring ? 1 : 0));
+  for (const Point& v : part) {
     if (out.empty() || !(out.back() == v)) out.push_back(v);
   }
+  if (ring && !part.empty() && !(out.back() == part.front())) out.push_back(part.front());
   return out;
 }
 
@@ -337,9 +340,7 @@ Result<Path> curve_of(const Shape& shape) {
                   "Fréchet distance needs a single curve, but the shape has " + std::to_string(shape.parts.size()) +
                       (shape.kind == ShapeKind::polygon ? " rings" : " strokes"));
   }
-  Path curve = shape.parts.front();
-  if (shape.kind == ShapeKind::polygon) curve.push_back(curve.front());  // back to the start vertex
-  curve = without_repeats(curve);
+  Path curve = curve_of_part(shape.parts.front(), shape.kind == ShapeKind::polygon);
   if (curve.size() < 2) return Status(StatusCode::not_applicable, "the curve has fewer than two distinct vertices");
   return curve;
 }
