@@ -160,24 +160,29 @@ Status resume_compactions(rocksdb::DB& database) {
   return from_rocksdb(database.EnableAutoCompaction({database.DefaultColumnFamily()}), "resuming compactions");
 }
 
+// Runs `task` on a thread of its own, or on the caller's thread (at get()) when no thread can be
+// had.
+template <typename Task>
+auto on_own_thread(const Task& task) -> std::future<decltype(task())> {
+  try {
+    return std::async(std::launch::async, task);
+  } catch (const std::system_error&) {
+    return std::async(std::launch::deferred, task);
+  }
+}
+
 // Sketches every shape into out (dimension() floats each). Sketching is the largest piece of
 // a batch's CPU work, and while the writing thread runs, RocksDB's flushes and compactions
 // leave much of a second core idle (perf, 400k-shape ingest): a large batch is sketched in two
 // halves at once. Without a thread to spare it sketches alone.
 void sketch_all(const Sketcher& sketcher, std::span<const Shape> shapes, std::span<float> out) {
   constexpr std::size_t kSplitFrom = 128;  // below this a thread's start costs more than it saves
+  if (shapes.size() < kSplitFrom) return sketcher.sketch_batch(shapes, out);
   const std::size_t half = shapes.size() / 2, dimension = sketcher.dimension();
-  std::optional<std::thread> helper;
-  if (shapes.size() >= kSplitFrom) {
-    try {
-      helper.emplace([&] { sketcher.sketch_batch(shapes.first(half), out.first(half * dimension)); });
-    } catch (const std::system_error&) {
-      // No thread to be had: fall through and sketch every shape here.
-    }
-  }
-  const std::size_t first_here = helper ? half : 0;
-  sketcher.sketch_batch(shapes.subspan(first_here), out.subspan(first_here * dimension));
-  if (helper) helper->join();
+  std::future<void> first_half =
+      on_own_thread([&] { sketcher.sketch_batch(shapes.first(half), out.first(half * dimension)); });
+  sketcher.sketch_batch(shapes.subspan(half), out.subspan(half * dimension));
+  first_half.get();
 }
 
 std::string now_as_record() {
@@ -337,17 +342,6 @@ namespace {
 // The approximate index's snapshot as read from its file; nullopt when there is none yet (the
 // builder makes one when due).
 using SnapshotRead = std::optional<Result<ApproximateIndex::Snapshot>>;
-
-// Runs `task` on a thread of its own, or on the caller's thread (at get()) when no thread can be
-// had.
-template <typename Task>
-auto on_own_thread(const Task& task) -> std::future<decltype(task())> {
-  try {
-    return std::async(std::launch::async, task);
-  } catch (const std::system_error&) {
-    return std::async(std::launch::deferred, task);
-  }
-}
 
 // Reads the snapshot of a freshly opened generation on a thread of its own, so that the file's
 // reading overlaps the store's scan (at 1M shapes each takes seconds); on this thread when no
@@ -539,15 +533,52 @@ void give_copies(Collection::State& state, std::vector<std::pair<std::int64_t, R
   made.clear();  // copies not given return their bytes to the capacity
 }
 
-// The float copies of the shapes that open() found, made after it on a thread of its own.
-// Making them was a quarter of a restart (1M shapes, graph index: 3.70 s without copies, 5.19 s
-// with, fresh processes, 2026-12-03), and they are not needed to answer a query: until a shape
-// has its copy, its candidates are read from the store, for the same answer. The records are
-// read once more, in id order from one snapshot, and the copies are handed over in groups
-// (each group under the maps' lock for a few hundred map look-ups). Stops early when the
-// collection closes, when no copy capacity is left at all, or at a store error (the shapes
-// not reached then have no copy; nothing else depends on them).
+// One copy pass at a time in the process: a server opening many collections would otherwise
+// read all their stores at once, beside the next opens and the first queries.
+std::mutex copy_turn_mutex;
+std::condition_variable copy_turn_changed;
+bool copy_pass_running = false;  // guarded by copy_turn_mutex
+
+// Waits for the turn to make copies; false when the collection is closing (stop_copying).
+bool take_copy_turn(const Collection::State& state) {
+  std::unique_lock lock(copy_turn_mutex);
+  copy_turn_changed.wait(lock, [&state] { return !copy_pass_running || state.stop_copying; });
+  if (state.stop_copying) return false;
+  copy_pass_running = true;
+  return true;
+}
+
+void give_up_copy_turn() {
+  {
+    std::lock_guard lock(copy_turn_mutex);
+    copy_pass_running = false;
+  }
+  copy_turn_changed.notify_all();
+}
+
+// Ends the collection's copy pass (or its wait for a turn) and waits for it.
+void stop_copying(Collection::State& state) {
+  {
+    std::lock_guard lock(copy_turn_mutex);  // so that a waiter cannot miss the stop
+    state.stop_copying = true;
+  }
+  copy_turn_changed.notify_all();
+  const std::shared_future<void> copying = state.copying;
+  if (copying.valid()) copying.wait();
+}
+
+// The float copies of the shapes that open() found, made after it on a thread of its own:
+// they are not needed to answer a query (until a shape has its copy, its candidates are read
+// from the store, for the same answer), and a restart need not wait for them. Same 1M graph
+// store, fresh processes, previous build and this one alternating (2026-12-03): the open took
+// 3.98 / 3.78 / 3.90 s with copies made in it, 3.72 / 3.33 / 3.17 s without, and the copies
+// were done 2.6–3.5 s later. The records are read once more, in id order from one snapshot,
+// and the copies are handed over in groups (each group under the maps' lock for a few hundred
+// map look-ups), one collection at a time. Stops early when the collection closes, when no
+// copy capacity is left, or at a store error (the shapes not reached then have no copy;
+// nothing else depends on them).
 void make_copies_after_open(Collection::State& state) {
+  if (!take_copy_turn(state)) return;
   constexpr std::size_t kCopiesPerGroup = 512;
   rocksdb::ReadOptions reading;
   reading.fill_cache = false;  // read once: through the block cache it would only churn it
@@ -569,6 +600,7 @@ void make_copies_after_open(Collection::State& state) {
     if (made.size() == kCopiesPerGroup) give_copies(state, made);
   }
   give_copies(state, made);
+  give_up_copy_turn();
 }
 
 }  // namespace
@@ -604,8 +636,7 @@ void Collection::State::wake_builder() {
 }
 
 Collection::~Collection() {
-  state_->stop_copying = true;
-  wait_for_resident_copies();
+  stop_copying(*state_);
   if (!state_->builder.joinable()) return;
   {
     std::lock_guard lock(state_->builder_mutex);

@@ -189,11 +189,13 @@ TEST_CASE("CopiesMadeAfterAnOpenReachEveryStoredShapeAndChangeNoAnswer", "[concu
   // read at the open must go to no label but that version's.
   SeededRandom random(82);
   std::atomic<int> failed_queries{0};
+  std::vector<Shape> queries;  // copied: the writes below change `records`
+  for (std::size_t q = 0; q < 30; ++q) queries.push_back(records[q * 97].shape);
   std::thread querying([&] {
-    for (int q = 0; q < 30; ++q) {
+    for (std::size_t q = 0; q < queries.size(); ++q) {
       QueryOptions options;
       options.metric = q % 2 == 0 ? Metric::hausdorff : Metric::frechet;
-      if (!collection.nearest(records[q * 97].shape, options).is_ok()) ++failed_queries;
+      if (!collection.nearest(queries[q], options).is_ok()) ++failed_queries;
     }
   });
   std::vector<bool> removed(records.size(), false);
@@ -246,4 +248,35 @@ TEST_CASE("CopiesMadeAfterAnOpenReachEveryStoredShapeAndChangeNoAnswer", "[concu
       require_same(*exact, *scanned);
     }
   }
+}
+
+TEST_CASE("CopyPassesOfSeveralCollectionsTakeTurnsAndAClosingOneStopsWaiting", "[concurrency]") {
+  CapacityGuard guard;
+  set_resident_copy_capacity(std::size_t{1} << 30);
+  TemporaryDirectory first_directory, second_directory;
+  const std::vector<ShapeRecord> first_records = synthetic_records(6000, 91);
+  const std::vector<ShapeRecord> second_records = synthetic_records(3000, 92);
+  filled_collection(first_directory, first_records);
+  filled_collection(second_directory, second_records);
+  auto expected_bytes = [](const std::vector<ShapeRecord>& records) {
+    std::size_t bytes = 0;
+    for (const ShapeRecord& record : records) bytes += ResidentCopy::of(record.shape, Frame::unit).bytes();
+    return bytes;
+  };
+  Result<std::unique_ptr<Collection>> first = Collection::open(first_directory.path);
+  REQUIRE(first.is_ok());
+  {
+    // Opened while the first pass runs, closed at once: its pass is waiting for its turn (or
+    // running), and the close must end that wait and return; under ThreadSanitizer too.
+    Result<std::unique_ptr<Collection>> closed_early = Collection::open(second_directory.path);
+    REQUIRE(closed_early.is_ok());
+  }
+  Result<std::unique_ptr<Collection>> second = Collection::open(second_directory.path);
+  REQUIRE(second.is_ok());
+  (*second)->wait_for_resident_copies();  // after the first pass: one at a time
+  (*first)->wait_for_resident_copies();
+  CHECK((*first)->statistics().resident_copy_bytes == expected_bytes(first_records));
+  CHECK((*second)->statistics().resident_copy_bytes == expected_bytes(second_records));
+  CHECK_FALSE((*first)->statistics().making_resident_copies);
+  CHECK_FALSE((*second)->statistics().making_resident_copies);
 }
