@@ -548,23 +548,24 @@ bool take_copy_turn(const Collection::State& state) {
   return true;
 }
 
-void give_up_copy_turn() {
-  {
-    std::lock_guard lock(copy_turn_mutex);
-    copy_pass_running = false;
+// Gives the turn back when a pass ends, however it ends.
+struct CopyTurnHeld {
+  ~CopyTurnHeld() {
+    {
+      std::lock_guard lock(copy_turn_mutex);
+      copy_pass_running = false;
+    }
+    copy_turn_changed.notify_all();
   }
-  copy_turn_changed.notify_all();
-}
+};
 
-// Ends the collection's copy pass (or its wait for a turn) and waits for it.
+// Tells the collection's copy pass (or its wait for a turn) to end.
 void stop_copying(Collection::State& state) {
   {
     std::lock_guard lock(copy_turn_mutex);  // so that a waiter cannot miss the stop
     state.stop_copying = true;
   }
   copy_turn_changed.notify_all();
-  const std::shared_future<void> copying = state.copying;
-  if (copying.valid()) copying.wait();
 }
 
 // The float copies of the shapes that open() found, made after it on a thread of its own:
@@ -579,6 +580,7 @@ void stop_copying(Collection::State& state) {
 // nothing else depends on them).
 void make_copies_after_open(Collection::State& state) {
   if (!take_copy_turn(state)) return;
+  const CopyTurnHeld turn;
   constexpr std::size_t kCopiesPerGroup = 512;
   rocksdb::ReadOptions reading;
   reading.fill_cache = false;  // read once: through the block cache it would only churn it
@@ -600,7 +602,6 @@ void make_copies_after_open(Collection::State& state) {
     if (made.size() == kCopiesPerGroup) give_copies(state, made);
   }
   give_copies(state, made);
-  give_up_copy_turn();
 }
 
 }  // namespace
@@ -637,6 +638,7 @@ void Collection::State::wake_builder() {
 
 Collection::~Collection() {
   stop_copying(*state_);
+  wait_for_resident_copies();
   if (!state_->builder.joinable()) return;
   {
     std::lock_guard lock(state_->builder_mutex);
