@@ -211,6 +211,11 @@ Status from_rocksdb(const rocksdb::Status& status, const std::string& doing) {
 
 std::string shape_key(const std::string& id) { return kShapePrefix + id; }
 
+std::string id_of_shape_key(const rocksdb::Slice& key) {
+  const std::size_t prefix_length = std::strlen(kShapePrefix);
+  return std::string(key.data() + prefix_length, key.size() - prefix_length);
+}
+
 std::string sketch_prefix(std::uint64_t generation) {
   char hex[17];
   std::snprintf(hex, sizeof hex, "%016llx", static_cast<unsigned long long>(generation));
@@ -413,7 +418,6 @@ StoredRange read_store_range(rocksdb::DB& database, const rocksdb::Snapshot* sna
   const std::uint64_t number = generation.number();
   const std::string prefix = sketch_prefix(number);
   const std::string end_key = kShapePrefix + end_id;
-  const std::size_t shape_prefix_length = std::strlen(kShapePrefix);
   // key == prefix + id, without building that string for each of a million records.
   auto is_key_of = [](const rocksdb::Slice& key, const std::string& prefix, const std::string& id) {
     return key.size() == prefix.size() + id.size() && key.starts_with(prefix) &&
@@ -424,8 +428,7 @@ StoredRange read_store_range(rocksdb::DB& database, const rocksdb::Snapshot* sna
     return key.starts_with(kShapePrefix) && (end_id.empty() || key.compare(end_key) < 0);
   };
   for (records->Seek(kShapePrefix + first_id); records->Valid() && in_range(records->key()); records->Next()) {
-    const rocksdb::Slice record_key = records->key();
-    const std::string id(record_key.data() + shape_prefix_length, record_key.size() - shape_prefix_length);
+    const std::string id = id_of_shape_key(records->key());
     Result<StoredShape> stored = decode_record(id, records->value().ToStringView(), settings.limits);
     if (!stored) {
       out.failure = stored.status();
@@ -464,7 +467,7 @@ std::vector<std::string> range_cuts(rocksdb::DB& database, std::size_t parts) {
   for (const rocksdb::LiveFileMetaData& file : files) {
     for (const std::string* key : {&file.smallestkey, &file.largestkey}) {
       if (key->starts_with(kShapePrefix) && key->size() > std::strlen(kShapePrefix)) {
-        ids.push_back(key->substr(std::strlen(kShapePrefix)));
+        ids.push_back(id_of_shape_key(*key));
       }
     }
   }
@@ -586,15 +589,13 @@ void make_copies_after_open(Collection::State& state) {
   reading.fill_cache = false;  // read once: through the block cache it would only churn it
   reading.readahead_size = 4 << 20;
   std::unique_ptr<rocksdb::Iterator> records(state.database->NewIterator(reading));
-  const std::size_t prefix_length = std::strlen(kShapePrefix);
   std::vector<std::pair<std::int64_t, ResidentCopy>> made;
   made.reserve(kCopiesPerGroup);
   for (records->Seek(kShapePrefix); records->Valid() && records->key().starts_with(kShapePrefix); records->Next()) {
     if (state.stop_copying.load(std::memory_order_relaxed)) break;
     if (resident_copy_bytes() >= resident_copy_capacity()) break;
-    const rocksdb::Slice key = records->key();
-    Result<StoredShape> stored = decode_record(std::string(key.data() + prefix_length, key.size() - prefix_length),
-                                               records->value().ToStringView(), state.settings.limits);
+    Result<StoredShape> stored =
+        decode_record(id_of_shape_key(records->key()), records->value().ToStringView(), state.settings.limits);
     if (!stored) break;
     ResidentCopy copy = ResidentCopy::of(stored->shape, state.settings.frame);
     if (copy.empty()) continue;
@@ -684,7 +685,7 @@ Status upgrade_from_format_2(rocksdb::DB& database, const CollectionSettings& se
   rocksdb::WriteBatch batch;
   std::unique_ptr<rocksdb::Iterator> it(database.NewIterator(rocksdb::ReadOptions()));
   for (it->Seek(kShapePrefix); it->Valid() && it->key().starts_with(kShapePrefix); it->Next()) {
-    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
+    const std::string id = id_of_shape_key(it->key());
     const std::string_view bytes = it->value().ToStringView();
     std::uint64_t label = 0, geometry_size = 0, sketch_size = 0;
     if (bytes.size() < 16) return Status(StatusCode::data_loss, "store: record of '" + id + "' is damaged: too short");
@@ -1067,7 +1068,7 @@ Result<std::vector<ShapeRecord>> Collection::list(const std::string& after, std:
   it->Seek(start);
   if (it->Valid() && !after.empty() && it->key() == start) it->Next();
   for (; it->Valid() && it->key().starts_with(kShapePrefix) && page.size() < limit; it->Next()) {
-    const std::string id = it->key().ToString().substr(std::strlen(kShapePrefix));
+    const std::string id = id_of_shape_key(it->key());
     Result<StoredShape> stored = decode_record(id, it->value().ToStringView(), state_->settings.limits);
     if (!stored) return stored.status();
     page.push_back({id, std::move(stored->shape), std::move(stored->metadata)});

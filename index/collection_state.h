@@ -146,6 +146,8 @@ struct Collection::State {
 
 // Store keys (index/STORE_FORMAT.md).
 std::string shape_key(const std::string& id);
+// The id in a record key (shape_key(id)); the key must be one.
+std::string id_of_shape_key(const rocksdb::Slice& key);
 std::string sketch_key(std::uint64_t generation, const std::string& id);
 std::string sketch_prefix(std::uint64_t generation);
 // A sketch value: the record's label (u64) then the floats.

@@ -554,7 +554,7 @@ Result<QueryAnswer> Collection::nearest_by_full_scan(const Shape& query, const Q
   const std::string prefix = shape_key("");
   for (it->Seek(prefix); it->Valid() && it->key().starts_with(prefix); it->Next()) {
     Result<StoredShape> stored =
-        decode_record(it->key().ToString().substr(prefix.size()), it->value().ToStringView(), state_->settings.limits);
+        decode_record(id_of_shape_key(it->key()), it->value().ToStringView(), state_->settings.limits);
     if (!stored) return stored.status();
     Result<std::vector<float>> raw = prepared.generation->index.vector_of(stored->label);
     if (!raw) continue;  // replaced since the scan began
