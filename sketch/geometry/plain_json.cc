@@ -1,5 +1,6 @@
 #include "sketch/geometry/plain_json.h"
 
+#include <array>
 #include <charconv>
 #include <cmath>
 
@@ -60,11 +61,28 @@ bool PlainJsonCursor::read_number(double& value) {
   return true;
 }
 
+namespace {
+
+// The bytes a container scan must look at: quotes, backslashes, brackets and braces. Every
+// other byte (digits, signs, commas, spaces: nearly all of a coordinate array) is passed over
+// by one table lookup each. perf of an HTTP bulk ingest of 64-vertex LineStrings had the
+// scan, with a chain of comparisons per byte, as the server's largest item (18 % of its time).
+constexpr std::array<bool, 256> kContainerBytes = [] {
+  std::array<bool, 256> table{};
+  for (const unsigned char c : std::string_view("\"\\[]{}")) table[c] = true;
+  return table;
+}();
+
+}  // namespace
+
 bool PlainJsonCursor::skip_container(std::string_view& out) {
   if (at_end() || (text_[position_] != '{' && text_[position_] != '[')) return false;
   int depth = 0;
   bool in_string = false;
-  for (std::size_t i = position_; i < text_.size(); ++i) {
+  const std::size_t size = text_.size();
+  for (std::size_t i = position_; i < size; ++i) {
+    while (i < size && !kContainerBytes[static_cast<unsigned char>(text_[i])]) ++i;
+    if (i == size) break;
     const char c = text_[i];
     if (in_string) {
       if (c == '\\') {

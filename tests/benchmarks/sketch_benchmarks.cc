@@ -181,4 +181,21 @@ BENCHMARK(GeosDiscreteFrechet1000)->Unit(benchmark::kMillisecond);
 
 }  // namespace
 
+// Reading one GeoJSON LineString of 64 vertices at full precision, as bulk ingest reads a
+// line's geometry (its coordinates passed over by their brackets, then read as numbers).
+void ReadGeoJsonLineString64(benchmark::State& state) {
+  SeededRandom random(1);
+  std::vector<std::string> texts;
+  for (int i = 0; i < kPairs; ++i) texts.push_back(to_geojson(testing::random_walk(random, 64)));
+  std::size_t i = 0, bytes = 0;
+  for (auto _ : state) {
+    const std::string& text = texts[i++ % kPairs];
+    Result<Shape> shape = parse_geojson(text, ParseOptions{});
+    benchmark::DoNotOptimize(shape);
+    bytes += text.size();
+  }
+  state.SetBytesProcessed(static_cast<std::int64_t>(bytes));
+}
+BENCHMARK(ReadGeoJsonLineString64);
+
 BENCHMARK_MAIN();
