@@ -179,8 +179,6 @@ void GeosDiscreteFrechet1000(benchmark::State& state) {
 }
 BENCHMARK(GeosDiscreteFrechet1000)->Unit(benchmark::kMillisecond);
 
-}  // namespace
-
 // Reading one GeoJSON LineString of 64 vertices at full precision, as bulk ingest reads a
 // line's geometry (its coordinates passed over by their brackets, then read as numbers).
 void ReadGeoJsonLineString64(benchmark::State& state) {
@@ -197,5 +195,7 @@ void ReadGeoJsonLineString64(benchmark::State& state) {
   state.SetBytesProcessed(static_cast<std::int64_t>(bytes));
 }
 BENCHMARK(ReadGeoJsonLineString64);
+
+}  // namespace
 
 BENCHMARK_MAIN();
