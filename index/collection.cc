@@ -186,13 +186,6 @@ void in_two_halves(std::size_t count, const Work& work) {
   first_half.get();
 }
 
-// Sketches shapes [begin, end) into out, which holds dimension() floats per shape of `shapes`.
-void sketch_range(const Sketcher& sketcher, std::span<const Shape> shapes, std::size_t begin, std::size_t end,
-                  std::span<float> out) {
-  const std::size_t dimension = sketcher.dimension();
-  sketcher.sketch_batch(shapes.subspan(begin, end - begin), out.subspan(begin * dimension, (end - begin) * dimension));
-}
-
 std::string now_as_record() {
   const auto now = std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::system_clock::now().time_since_epoch());
   const std::uint64_t ms = static_cast<std::uint64_t>(now.count());
@@ -884,15 +877,13 @@ struct Collection::State::PreparedUpsert {
   Status result;
   bool done = false;
 
-  // Everything for the winners, in `in`: two halves at once (in_two_halves).
+  // Everything for the winners, sketched in `in`; each step in two halves at once.
   void prepare(Frame frame, std::shared_ptr<Generation> in) {
-    generation = std::move(in);
     const std::size_t count = winners.size();
     framed.resize(count);
     shape_keys.resize(count);
     records.resize(count);
     copies.resize(count);
-    sketches.assign(count * generation->landmark_count(), 0.0f);
     in_two_halves(count, [&](std::size_t begin, std::size_t end) {
       for (std::size_t w = begin; w < end; ++w) {
         const ShapeRecord& record = batch[winners[w]];
@@ -901,22 +892,20 @@ struct Collection::State::PreparedUpsert {
         records[w] = encode_record(0, encode_shape(record.shape), record.metadata);
         copies[w] = ResidentCopy::of(framed[w], Frame::absolute);
       }
-      sketch_range(generation->sketcher, framed, begin, end, sketches);
     });
-    encode_sketches();
+    sketch_in(std::move(in));
   }
 
-  // Sketches again in `in`, should a refit have switched generations since prepare().
+  // The sketches, their keys and values, and the index vectors in `in`: by prepare(), and again
+  // by the commit should a refit have switched generations since.
   void sketch_in(std::shared_ptr<Generation> in) {
     generation = std::move(in);
-    sketches.assign(framed.size() * generation->landmark_count(), 0.0f);
+    const std::size_t dimension = generation->landmark_count();
+    sketches.assign(framed.size() * dimension, 0.0f);
     in_two_halves(framed.size(), [&](std::size_t begin, std::size_t end) {
-      sketch_range(generation->sketcher, framed, begin, end, sketches);
+      generation->sketcher.sketch_batch(std::span<const Shape>(framed).subspan(begin, end - begin),
+                                        std::span<float>(sketches).subspan(begin * dimension, (end - begin) * dimension));
     });
-    encode_sketches();
-  }
-
-  void encode_sketches() {
     sketch_keys.clear();
     sketch_values.clear();
     index_vectors.clear();
