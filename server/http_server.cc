@@ -27,6 +27,11 @@ using tcp = asio::ip::tcp;
 using Clock = std::chrono::steady_clock;
 
 constexpr std::size_t kHeaderLimit = 16 * 1024;
+// The most a body read asks the socket for at once. Beast sizes each read by the read buffer's
+// free capacity, and the parser empties that buffer into the body after every read, so a buffer
+// left at its first size (512 bytes) read a 2.7 MB bulk body in 5,441 reads (strace) and spent
+// about as long on it as on storing its thousand shapes.
+constexpr std::size_t kBodyReadChunk = 64 * 1024;
 
 // What every session shares.
 struct Shared {
@@ -82,6 +87,9 @@ class Session : public std::enable_shared_from_this<Session<Stream>> {
       return fail_read(http::error::body_limit);  // declared too large: refused before reading it
     }
     parser_->body_limit(limit);  // chunked bodies are checked as they arrive
+    // A known length that fits is read in as few reads as it takes; an unknown one (chunked) in
+    // chunks of the largest size.
+    buffer_.reserve(std::min<std::uint64_t>(parser_->content_length().value_or(kBodyReadChunk), kBodyReadChunk));
     beast::get_lowest_layer(stream_).expires_after(std::chrono::milliseconds(shared_.config.read_timeout_ms));
     // A client that asked to be told before it sends the body (curl does for large uploads)
     // would otherwise wait a second for this interim reply before sending anything.

@@ -351,6 +351,24 @@ def run_api_checks(server, directory):
     status, described = server.call("GET", "/v1/collections/parts")
     check(described["stats"]["shapes"] == 604 and described["stats"]["last_write"], f"stats: {described['stats']}")
 
+    # Bulk NDJSON with a Content-Length, about 1.3 MB: a body that takes many socket reads
+    # arrives whole, every full-precision coordinate read back as sent.
+    import random
+    rng = random.Random(11)
+    strokes = {f"stroke-{i}": [[rng.uniform(-100, 100), rng.uniform(-100, 100)] for _ in range(300)] for i in range(100)}
+    body = "".join(json.dumps({"id": stroke_id, "geometry": {"type": "LineString", "coordinates": coordinates}}) + "\n"
+                   for stroke_id, coordinates in strokes.items())
+    status, created = server.call("PUT", "/v1/collections/strokes", {}, token=WRITE)
+    check(status == 201, f"create strokes: {status} {created}")
+    status, reply = server.call("POST", "/v1/collections/strokes/shapes", raw=body, token=WRITE,
+                                headers={"Content-Type": "application/x-ndjson"})
+    check(status == 200 and reply["accepted"] == 100 and reply["rejected"] == 0, f"bulk with a length: {status} {reply}")
+    for stroke_id in ("stroke-0", "stroke-57", "stroke-99"):
+        status, stored = server.call("GET", f"/v1/collections/strokes/shapes/{stroke_id}")
+        check(status == 200 and stored["geometry"]["coordinates"] == strokes[stroke_id], f"read back {stroke_id}")
+    status, reply = server.call("DELETE", "/v1/collections/strokes", token=WRITE)
+    check(status == 200, f"drop strokes: {status} {reply}")
+
     check_exact_against_brute_force(server, "")
     query_shape = "LINESTRING (0 0, 10 2, 20 -1, 30 0)"
 
@@ -455,11 +473,11 @@ def run_api_checks(server, directory):
           f"slow drip cut off: {answer!r}")
     sock.close()
 
-    # Metrics in the Prometheus text format.
+    # Metrics in the Prometheus text format (bulk lines accepted: 600 parts and 100 strokes).
     status, text = server.call("GET", "/metrics")
     check(status == 200 and 'waymark_http_requests_total{method="POST",route="/v1/collections/{name}/nearest",status="200"}'
           in text and 'waymark_collection_shapes{collection="parts"} 603' in text and
-          'waymark_ingest_shapes_total{outcome="accepted"} 600' in text, "metrics:\n" + text[:2000])
+          'waymark_ingest_shapes_total{outcome="accepted"} 700' in text, "metrics:\n" + text[:2000])
     # Memory gauges: resident size against the kernel's own figure (/proc/PID/status, read
     # right after), the shared block cache's configured 512 MiB, unflushed writes in memtables.
     gauges = {line.split()[0]: float(line.split()[1]) for line in text.splitlines() if line and not line.startswith("#")}
