@@ -83,6 +83,10 @@ Result<HttpReply> HttpClient::send(const std::string& method, const std::string&
                                                    " (is waymarkd running? give --server or WAYMARK_SERVER)");
       }
       c.buffer.clear();
+      // Beast sizes each read by the buffer's free capacity, and the parser empties the buffer
+      // into the body after every read: left at its first 512 bytes, a large reply (a page of
+      // ids for --resume) takes a read call per 512 bytes.
+      c.buffer.reserve(64 * 1024);
       c.open = true;
     }
     http::request<http::string_body> request{verb, target, 11};
