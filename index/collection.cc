@@ -19,6 +19,7 @@
 #include "index/shape_codec.h"
 #include "sketch/distance/frechet.h"
 #include "sketch/durable_file.h"
+#include "sketch/own_thread.h"
 
 namespace waymark {
 namespace {
@@ -159,17 +160,6 @@ Result<std::unique_ptr<rocksdb::DB>> open_database(const std::string& directory,
 // until RocksDB stops writes altogether.
 Status resume_compactions(rocksdb::DB& database) {
   return from_rocksdb(database.EnableAutoCompaction({database.DefaultColumnFamily()}), "resuming compactions");
-}
-
-// Runs `task` on a thread of its own, or on the caller's thread (at get()) when no thread can be
-// had.
-template <typename Task>
-auto on_own_thread(const Task& task) -> std::future<decltype(task())> {
-  try {
-    return std::async(std::launch::async, task);
-  } catch (const std::system_error&) {
-    return std::async(std::launch::deferred, task);
-  }
 }
 
 // Runs work(begin, end) over [0, count) in two halves at once. A batch's CPU work (framing,

@@ -1,11 +1,13 @@
 #!/usr/bin/env python3
-"""Ingest over HTTP: bulk NDJSON requests of 1,000 GeoJSON LineStrings (64 vertices, invented
-random walks, seeded) to a fresh waymarkd, sent on CONNECTIONS connections at once, each
-waiting for its reply before sending the next (as `waymark ingest` does). Prints shapes/s from
-the first request to the last reply; asserts nothing. Request bodies are made before the clock
-starts. Builds nothing: run after a Release build (build/server/waymarkd).
+"""Ingest over HTTP: bulk NDJSON requests of LINES GeoJSON LineStrings each (64 vertices,
+invented random walks, seeded) to a fresh waymarkd, sent on CONNECTIONS connections at once,
+each waiting for its reply before sending the next (as `waymark ingest` does, with 1,000
+lines). The server commits them in batches of 1,000 however many a request holds. Prints
+shapes/s from the first request to the last reply; asserts nothing. Request bodies are made
+before the clock starts. Builds nothing: run after a Release build (build/server/waymarkd), or
+name another binary in WAYMARKD.
 
-Usage: scripts/http-ingest-benchmark.py [SHAPES (30000)] [CONNECTIONS (1)]
+Usage: scripts/http-ingest-benchmark.py [SHAPES (30000)] [CONNECTIONS (1)] [LINES (1000)]
 """
 import http.client
 import json
@@ -25,6 +27,7 @@ TOKEN = "ingest-benchmark-" + os.urandom(8).hex()
 def main():
     shapes = int(sys.argv[1]) if len(sys.argv) > 1 else 30000
     connections = int(sys.argv[2]) if len(sys.argv) > 2 else 1
+    per_request = int(sys.argv[3]) if len(sys.argv) > 3 else 1000
     random.seed(1)
     templates = []
     for _ in range(200):
@@ -36,9 +39,9 @@ def main():
             walk.append((x, y))
         templates.append(walk)
     bodies = []
-    for start in range(0, shapes, 1000):
+    for start in range(0, shapes, per_request):
         lines = []
-        for n in range(start, min(shapes, start + 1000)):
+        for n in range(start, min(shapes, start + per_request)):
             walk = random.choice(templates)
             coordinates = [[px + random.uniform(-0.3, 0.3), py + random.uniform(-0.3, 0.3)] for px, py in walk]
             lines.append(json.dumps({"id": f"walk-{n}", "geometry": {"type": "LineString", "coordinates": coordinates}}))
@@ -46,7 +49,8 @@ def main():
 
     work = tempfile.mkdtemp(prefix="waymark-http-ingest-")
     log = open(os.path.join(work, "log"), "w+")
-    server = subprocess.Popen([os.path.join(ROOT, "build/server/waymarkd"), "--data-directory", os.path.join(work, "data"),
+    binary = os.environ.get("WAYMARKD", os.path.join(ROOT, "build/server/waymarkd"))
+    server = subprocess.Popen([binary, "--data-directory", os.path.join(work, "data"),
                                "--port", "0", "--log-level", "warn"],
                               env=dict(os.environ, WAYMARK_WRITE_TOKENS=TOKEN), stdout=log, stderr=log)
     try:
@@ -92,7 +96,7 @@ def main():
         seconds = time.monotonic() - started
         if errors:
             raise errors[0]
-        print(f"http ingest: {shapes} shapes of 64 vertices in batches of 1000 on {connections} connection(s): "
+        print(f"http ingest: {shapes} shapes of 64 vertices, {per_request} per request, on {connections} connection(s): "
               f"{seconds:.2f} s = {shapes / seconds:,.0f} shapes/s")
     finally:
         server.terminate()

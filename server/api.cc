@@ -13,6 +13,7 @@
 #include "sketch/distance/frechet.h"
 #include "sketch/distance/hausdorff.h"
 #include "sketch/geometry/formats.h"
+#include "sketch/own_thread.h"
 
 namespace waymark::server {
 
@@ -720,31 +721,61 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
     std::size_t accepted = 0, rejected = 0, lines = 0, batches = 0;
     Json rejections = Json::array();
     constexpr std::size_t kMaxRejectionsListed = 1000;
+    // Rejections of the lines read since the last batch was handed over. They count once the
+    // batch they fall among is handed over (or the body ends), and are dropped when the batch
+    // before fails: the reply reports no line after the failed batch.
+    std::size_t rejected_pending = 0;
+    Json rejections_pending = Json::array();
     auto reject = [&](std::size_t line, const std::string& id, const Status& status) {
-      ++rejected;
-      if (rejections.size() >= kMaxRejectionsListed) return;
+      ++rejected_pending;
+      if (rejections.size() + rejections_pending.size() >= kMaxRejectionsListed) return;
       Json entry = {{"line", line},
                     {"error",
                      {{"code", http_status_of(status.code()).second},
                       {"message", status.message()},
                       {"where", status.where()}}}};
       if (!id.empty()) entry["id"] = id;
-      rejections.push_back(std::move(entry));
+      rejections_pending.push_back(std::move(entry));
     };
+    // Each full batch commits on a thread of its own while the lines of the next one are read,
+    // so that reading overlaps the synced write (one body of 30,000 64-vertex lines: 18–21k
+    // shapes/s before, 33–34k after; reports/performance-log.md). Batches still commit one at
+    // a time and in order: one is handed over only once the one before is durable, so a
+    // failure leaves every batch before it stored and none after (tests/faults/fault_test.py).
+    struct Commit {
+      std::future<Status> done;
+      std::size_t first_line = 0, size = 0;
+    };
+    std::optional<Commit> committing;
     std::optional<Status> failure;
     std::size_t failed_from_line = 0;
-    auto flush = [&]() {
-      if (batch.empty() || failure) return;
-      Status s = check_free_space(config_);
-      if (s.is_ok()) s = collection.upsert(batch);
-      if (!s.is_ok()) {
+    auto wait_for_commit = [&]() {
+      if (!committing) return;
+      const Status s = committing->done.get();
+      if (s.is_ok()) {
+        accepted += committing->size;
+        ++batches;
+      } else {
         failure = s;
-        failed_from_line = batch_lines.front();
-        return;
+        failed_from_line = committing->first_line;
       }
-      accepted += batch.size();
-      ++batches;
+      committing.reset();
+    };
+    auto hand_over = [&]() {
+      wait_for_commit();
+      if (failure) return;
+      rejected += rejected_pending;
+      rejected_pending = 0;
+      for (Json& entry : rejections_pending) rejections.push_back(std::move(entry));
+      rejections_pending = Json::array();
+      if (batch.empty()) return;
+      auto records = std::make_shared<const std::vector<ShapeRecord>>(std::move(batch));
       batch.clear();
+      committing = Commit{on_own_thread([this, &collection, records] {
+                            const Status space = check_free_space(config_);
+                            return space.is_ok() ? collection.upsert(*records) : space;
+                          }),
+                          batch_lines.front(), records->size()};
       batch_lines.clear();
     };
     const ShapeLimits limits = collection.settings().limits;
@@ -806,9 +837,10 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
       }
       batch.push_back(std::move(*record));
       batch_lines.push_back(line_number);
-      if (batch.size() >= config_.bulk_batch_size) flush();
+      if (batch.size() >= config_.bulk_batch_size) hand_over();
     }
-    flush();
+    hand_over();
+    wait_for_commit();
     metrics_.record_ingest(accepted, rejected);
     const double milliseconds = milliseconds_since(start);
     spdlog::info("bulk ingest: collection={} lines={} accepted={} rejected={} batches={} ms={:.1f}", name, lines,

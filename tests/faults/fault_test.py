@@ -5,7 +5,8 @@ gets a clear error (500 io_error for the failed fsync; 507 storage_full once fre
 below min_free_disk_bytes, before the disk is actually full) and the log says what failed;
 later writes are refused while reads still answer; after a restart without the fault, every
 acknowledged shape is stored, the failed batch is stored whole or not at all, and writes work
-again.
+again. Then one body of many batches meets a failing fsync part way: what the reply reports
+and what the restarted store holds end exactly at the failed batch.
 
 Usage: fault_test.py WAYMARKD FAULT_LIBRARY
 """
@@ -24,8 +25,8 @@ check = Checks("fault test")
 
 
 class Server(Waymarkd):
-    def __init__(self, data, fault=None):
-        env = dict(WAYMARK_WRITE_TOKENS=TOKEN, WAYMARK_MIN_FREE_DISK_BYTES="1000000")
+    def __init__(self, data, fault=None, settings=None):
+        env = dict(WAYMARK_WRITE_TOKENS=TOKEN, WAYMARK_MIN_FREE_DISK_BYTES="1000000", **(settings or {}))
         if fault:
             env.update(LD_PRELOAD=LIBRARY, WAYMARK_FAULT=fault, WAYMARK_FAULT_DIRECTORY=os.path.realpath(data))
         super().__init__(WAYMARKD, data, env)
@@ -108,6 +109,59 @@ def run(fault, label, expected_status, expected_code, log_words):
         shutil.rmtree(work, ignore_errors=True)
 
 
+def run_one_body(fault, label):
+    """One bulk body of many batches (100 lines each) with a few bad lines among them, on a
+    disk whose fsync starts failing part way: the batches before the failed one are stored, the
+    failed one whole or not at all, nothing after it, and the reply counts and lists exactly the
+    stored lines and the bad lines up to the failed batch's last line."""
+    work = tempfile.mkdtemp(prefix="waymark-fault-")
+    data = os.path.join(work, "data")
+    try:
+        server = Server(data)
+        server.call("PUT", "/v1/collections/c", json.dumps({"landmarks": {"count": 16}}))
+        server.stop()
+        good = [line for number in range(60) for line in batch(number).splitlines()]
+        lines, good_at, bad_at = [], [], []
+        for i, line in enumerate(good):
+            if i % 170 == 85:
+                lines.append('{"id": "bad-%d", "geometry": "LINESTRING (0 0)"}' % i)
+                bad_at.append(len(lines))
+            lines.append(line)
+            good_at.append(len(lines))
+        server = Server(data, fault, {"WAYMARK_BULK_BATCH_SIZE": "100"})
+        status, reply = server.call("POST", "/v1/collections/c/shapes", "\n".join(lines) + "\n")
+        server.stop()
+        error = reply.get("error", {}) if isinstance(reply, dict) else {}
+        where = error.get("where", "")
+        check(status == 500 and error.get("code") == "io_error" and where.startswith("line "),
+              label + ": the body failed part way with the line it stopped at: %d %s" % (status, str(reply)[:300]))
+        if not where.startswith("line "):
+            return
+        first_failed = int(where[len("line "):])
+        failed = good_at.index(first_failed) if first_failed in good_at else -1
+        check(failed > 0 and failed % 100 == 0, label + ": the failed batch starts at a batch boundary (line %d)" % first_failed)
+        last_read = good_at[min(failed + 99, len(good_at) - 1)]
+        check(reply.get("accepted") == failed, label + ": accepted counts the batches before it (%s of %d)" %
+              (reply.get("accepted"), failed))
+        listed = sorted(r["line"] for r in reply.get("rejections", []))
+        expected = [line for line in bad_at if line <= last_read]
+        check(listed == expected and reply.get("rejected") == len(expected),
+              label + ": the bad lines up to the failed batch's end are reported, none after (%s, expected %s)" %
+              (listed, expected))
+
+        server = Server(data)
+        ids = stored_ids(server)
+        server.stop()
+        before = {json.loads(lines[at - 1])["id"] for at in good_at[:failed]}
+        in_failed = {json.loads(lines[at - 1])["id"] for at in good_at[failed:failed + 100]}
+        check(before <= ids and (ids - before == set() or ids - before == in_failed),
+              label + ": every batch before the failed one is stored, the failed one whole or not at all, nothing "
+              "after (%d stored, %d before the failure)" % (len(ids), len(before)))
+    finally:
+        shutil.rmtree(work, ignore_errors=True)
+
+
 run("fsync:30", "failing fsync", 500, "io_error", ["error", "bulk ingest failed"])
 run("full:3000000", "filling disk", 507, "storage_full", ["write refused", "bytes free"])
+run_one_body("fsync:30", "one body, failing fsync")
 check.finish()
