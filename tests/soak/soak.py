@@ -126,6 +126,9 @@ def main():
     server = Waymarkd(WAYMARKD, os.path.join(work, "data"),
                       {"WAYMARK_WRITE_TOKENS": TOKEN, "WAYMARK_MAX_CONCURRENT_QUERIES": "3",
                        "WAYMARK_LOG_LEVEL": "warn", "WAYMARK_WORKER_THREADS": "2",
+                       # five batches per 500-shape bulk request: a batch commits while the
+                       # handler reads the next one's lines
+                       "WAYMARK_BULK_BATCH_SIZE": "100",
                        # a small cache, so that it is full before the warm-up ends and RSS can be
                        # expected flat after it (it fills to capacity: blocks of rewritten files linger)
                        "WAYMARK_BLOCK_CACHE_BYTES": str(64 << 20)})
