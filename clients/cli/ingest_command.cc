@@ -272,6 +272,7 @@ int ingest_command(const std::vector<std::string>& words) {
   const std::vector<std::string> paths(arguments->operands().begin() + 1, arguments->operands().end());
   SourceOptions options;
   options.id_property = arguments->value_or("id-property", "");
+  options.pass_plain_lines = true;  // sent as read: the server checks them
 
   Result<Json> described = json_reply(client.send("GET", "/v1/collections/" + url_encode(collection)));
   if (!described) return fail(described.status().message());
@@ -307,8 +308,10 @@ int ingest_command(const std::vector<std::string>& words) {
   };
   auto flush = [&]() {
     if (batch.where.empty() || stopped) return;
+    const std::size_t body_bytes = batch.body.size();
     stopped = !loader.send(std::move(batch));
     batch = Batch();
+    batch.body.reserve(body_bytes + body_bytes / 8);  // the next is likely as large: no regrowth
     report_progress(false);
   };
   for (const auto& file : files) {
