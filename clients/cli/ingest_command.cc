@@ -272,7 +272,7 @@ int ingest_command(const std::vector<std::string>& words) {
   const std::vector<std::string> paths(arguments->operands().begin() + 1, arguments->operands().end());
   SourceOptions options;
   options.id_property = arguments->value_or("id-property", "");
-  options.pass_plain_lines = true;  // sent as read: the server checks them
+  options.pass_plain_text = true;  // sent as read: the server checks it
 
   Result<Json> described = json_reply(client.send("GET", "/v1/collections/" + url_encode(collection)));
   if (!described) return fail(described.status().message());

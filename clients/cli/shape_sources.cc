@@ -58,9 +58,135 @@ std::optional<std::string> id_text(const Json& value) {
   return std::nullopt;
 }
 
+// One feature of a plain FeatureCollection, as text (see read_plain_feature_collection).
+struct PlainFeature {
+  std::string_view id;  // a plain string's text, or a number's token; empty: no "id"
+  bool id_is_number = false;
+  std::string_view geometry, properties;  // objects; properties empty when absent
+};
+
+// The value of a member this reader does not use: a plain string, a number or a container.
+bool skip_plain_value(PlainJsonCursor& cursor) {
+  std::string_view ignored;
+  double number;
+  return cursor.read_plain_string(ignored) || cursor.skip_container(ignored) || cursor.read_number(number);
+}
+
+// A FeatureCollection read without a JSON document, when the whole text is in the plain form:
+// every feature an object of "type": "Feature", an optional "id" (a plain string or a number),
+// a "geometry" object, an optional "properties" object and other members of plain values. The
+// features in order; nullopt for anything else (a null geometry included), which the document
+// reading then handles with its messages. Objects are only passed over by their brackets.
+std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::string_view text) {
+  PlainJsonCursor cursor(text);
+  std::vector<PlainFeature> features;
+  bool is_collection = false, has_features = false;
+  cursor.skip_spaces();
+  if (!cursor.take('{')) return std::nullopt;
+  while (true) {
+    std::string_view key, value;
+    if (!cursor.read_member_name(key)) return std::nullopt;
+    if (key == "type") {
+      if (!cursor.read_plain_string(value) || value != "FeatureCollection") return std::nullopt;
+      is_collection = true;
+    } else if (key == "features") {
+      if (has_features) return std::nullopt;
+      has_features = true;
+      if (!cursor.take('[')) return std::nullopt;
+      cursor.skip_spaces();
+      for (bool first = true; !cursor.take(']'); first = false) {
+        if (!first && !cursor.take(',')) return std::nullopt;
+        cursor.skip_spaces();
+        PlainFeature feature;
+        bool is_feature = false, has_id = false;
+        if (!cursor.take('{')) return std::nullopt;
+        while (true) {
+          std::string_view name;
+          if (!cursor.read_member_name(name)) return std::nullopt;
+          if (name == "type") {
+            if (!cursor.read_plain_string(value) || value != "Feature") return std::nullopt;
+            is_feature = true;
+          } else if (name == "id") {
+            if (has_id) return std::nullopt;  // a repeated member: the document reading keeps the last
+            has_id = true;
+            const std::size_t start = cursor.position();
+            double number;
+            if (cursor.read_plain_string(feature.id)) {
+              if (feature.id.empty()) return std::nullopt;
+            } else if (cursor.read_number(number)) {
+              feature.id = text.substr(start, cursor.position() - start);
+              feature.id_is_number = true;
+            } else {
+              return std::nullopt;
+            }
+          } else if (name == "geometry" || name == "properties") {
+            std::string_view& slot = name == "geometry" ? feature.geometry : feature.properties;
+            if (!slot.empty() || !cursor.skip_container(value) || value.front() != '{') return std::nullopt;
+            slot = value;
+          } else if (!skip_plain_value(cursor)) {
+            return std::nullopt;
+          }
+          cursor.skip_spaces();
+          if (cursor.take('}')) break;
+          if (!cursor.take(',')) return std::nullopt;
+        }
+        if (!is_feature || feature.geometry.empty()) return std::nullopt;
+        features.push_back(feature);
+        cursor.skip_spaces();
+      }
+    } else if (!skip_plain_value(cursor)) {
+      return std::nullopt;
+    }
+    cursor.skip_spaces();
+    if (cursor.take('}')) break;
+    if (!cursor.take(',')) return std::nullopt;
+  }
+  cursor.skip_spaces();
+  if (!cursor.at_end() || !is_collection || !has_features) return std::nullopt;
+  return features;
+}
+
+// JSON text on one line: line breaks between tokens become spaces (JSON strings hold none).
+void append_on_one_line(std::string& out, std::string_view json) {
+  for (char c : json) out += (c == '\n' || c == '\r') ? ' ' : c;
+}
+
 void read_geojson(const fs::path& path, const std::string& text, const SourceOptions& options,
                   const std::function<void(SourceShape&&)>& emit, std::vector<SourceProblem>& problems) {
   const std::string name = path.string();
+  const std::string stem = path.stem().string();
+  if (options.pass_plain_text) {
+    if (const std::optional<std::vector<PlainFeature>> plain = read_plain_feature_collection(text)) {
+      for (std::size_t i = 0; i < plain->size(); ++i) {
+        const PlainFeature& feature = (*plain)[i];
+        std::string where = name + ": feature " + std::to_string(i + 1);
+        std::optional<std::string> id;
+        if (!options.id_property.empty()) {
+          const Json properties = feature.properties.empty() ? Json::object() : Json::parse(feature.properties, nullptr, false);
+          if (!properties.is_object() || !properties.contains(options.id_property) ||
+              !(id = id_text(properties[options.id_property]))) {
+            problems.push_back({where, "has no string or number property \"" + options.id_property + "\" for its id"});
+            continue;
+          }
+        } else if (feature.id_is_number) {
+          id = id_text(Json::parse(feature.id));  // written as the document reading writes it
+        } else if (!feature.id.empty()) {
+          id = std::string(feature.id);
+        } else {
+          id = stem + "-" + std::to_string(i + 1);
+        }
+        SourceShape shape{*id, Json(), Json(), where + " (id " + *id + ")", "{\"id\":" + Json(*id).dump() + ",\"geometry\":"};
+        append_on_one_line(shape.line, feature.geometry);
+        if (!feature.properties.empty()) {
+          shape.line += ",\"metadata\":";
+          append_on_one_line(shape.line, feature.properties);
+        }
+        shape.line += '}';
+        emit(std::move(shape));
+      }
+      return;
+    }
+  }
   Json root;
   try {
     root = Json::parse(text);
@@ -89,7 +215,6 @@ void read_geojson(const fs::path& path, const std::string& text, const SourceOpt
     emit({path.stem().string(), root, Json::object(), name + ": the geometry"});
     return;
   }
-  const std::string stem = path.stem().string();
   for (std::size_t i = 0; i < features.size(); ++i) {
     const Json& feature = *features[i];
     std::string where = name + ": feature " + std::to_string(i + 1);
@@ -291,7 +416,7 @@ void read_svg(const fs::path& path, const std::string& text, const std::function
   visit(root, !root.attribute("transform").empty());
 }
 
-// A line in the plain form SourceOptions::pass_plain_lines describes: its id, or nullopt.
+// A line in the plain form SourceOptions::pass_plain_text describes: its id, or nullopt.
 std::optional<std::string_view> plain_line_id(std::string_view line) {
   PlainJsonCursor cursor(line);
   std::optional<std::string_view> id, geometry, metadata;
@@ -324,7 +449,7 @@ void read_ndjson(const fs::path& path, const std::string& text, const SourceOpti
   for_each_trimmed_line(text, [&](std::size_t line_number, std::string_view line) {
     if (line.empty()) return;
     const std::string where = name + ": line " + std::to_string(line_number);
-    if (options.pass_plain_lines) {
+    if (options.pass_plain_text) {
       if (const std::optional<std::string_view> id = plain_line_id(line)) {
         SourceShape shape{std::string(*id), Json(), Json(), where + " (id " + std::string(*id) + ")", std::string(line)};
         emit(std::move(shape));

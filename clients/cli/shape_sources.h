@@ -32,8 +32,9 @@ struct SourceShape {
                             // a plain .ndjson line passed through, SourceOptions)
   nlohmann::json metadata = nlohmann::json::object();
   std::string where;        // "parts/a.geojson: feature 3", "b.wkt: line 12", "c.svg: line 4, <path>"
-  // .ndjson: the input line itself when it holds nothing but "id", "geometry" and "metadata",
-  // so that it is sent as read instead of printed again from `geometry` and `metadata`.
+  // The NDJSON line to send: an .ndjson input line itself when it holds nothing but "id",
+  // "geometry" and "metadata", or made from plain text (SourceOptions::pass_plain_text), so
+  // that it is sent as read instead of printed again from `geometry` and `metadata`.
   std::string line;
 };
 
@@ -55,14 +56,17 @@ std::vector<std::filesystem::path> collect_input_files(const std::vector<std::st
 
 struct SourceOptions {
   std::string id_property;  // GeoJSON: the property that holds the shape id
-  // .ndjson: a line in the plain form, an object of "id" (a string of printable ASCII without
-  // escapes), "geometry" (an object, or such a string) and optionally "metadata" (an object),
-  // is emitted with `line` holding it as read and `geometry` and `metadata` left null, without
-  // parsing it: for the bulk loader, which sends such lines as they are. Its geometry and
-  // metadata are then checked by the server alone, whose rejections name this line. Other
-  // lines are parsed as without this option. Reading a 64-vertex line went from ~100 µs to a
-  // few (`waymark ingest`, 30,000 lines: reports/performance-log.md).
-  bool pass_plain_lines = false;
+  // Plain input passed through as text, unparsed, for the bulk loader, which sends it on:
+  //   .ndjson   a line that is an object of "id" (a string of printable ASCII without escapes),
+  //             "geometry" (an object, or such a string) and optionally "metadata" (an object)
+  //             is emitted with `line` holding it as read;
+  //   .geojson  a FeatureCollection whose features all have a geometry object (and properties,
+  //             if any, an object) has each feature emitted with `line` made from their text.
+  // `geometry` and `metadata` are then left null: the server alone checks them, and its
+  // rejections name the file and line or feature. Other input is read as without this option.
+  // NDJSON lines and GeoJSON features of 64 vertices went from ~100 µs to a few each
+  // (reports/performance-log.md).
+  bool pass_plain_text = false;
 };
 
 // Reads one file and calls `emit` for every shape in it, in file order. Entries that cannot

@@ -76,6 +76,19 @@ def write_inputs(folder):
         json.dump({"type": "FeatureCollection", "features": features}, f)
     for p in parts[:200]:
         expected[p["id"]] = (p["geometry"], dict(p["metadata"], sku=p["id"]))
+    # GeoJSON every feature of which has a geometry, written across lines with a member the
+    # loader passes over (bbox): sent on as text, unparsed; feature 3's unclosed ring is
+    # rejected by the server under this file and feature.
+    brackets = []
+    for i, p in enumerate(catalogue(6, 12)):
+        sku = "BR-%02d" % i
+        geometry = geojson_of(p["geometry"]) if i != 2 else {"type": "Polygon", "coordinates": [[[0, 0], [1, 0], [1, 1]]]}
+        brackets.append({"type": "Feature", "bbox": [0, 0, 1, 1], "geometry": geometry,
+                         "properties": dict(p["metadata"], sku=sku, drawing={"sheet": i, "rev": "B"})})
+        if i != 2:
+            expected[sku] = (geometry, brackets[-1]["properties"])
+    with open(os.path.join(folder, "flanges", "brackets.geojson"), "w") as f:
+        json.dump({"type": "FeatureCollection", "name": "brackets", "features": brackets}, f, indent=2)
     # NDJSON in a subfolder; line 4 is broken JSON, line 7 has a bad geometry (an unclosed ring),
     # line 9 a member of its own.
     lines = []
@@ -148,20 +161,21 @@ def main():
         expected = write_inputs(folder)
         code, out, err = cli(port, "ingest", "parts", folder, "--id-property", "sku", "--batch", "64")
         check(code == 1, "some inputs rejected: exit 1 (got %d; %s)" % (code, err))
-        check("stored %d shapes from 5 files" % len(expected) in out, "summary counts the stored shapes: " + out[:300])
+        check("stored %d shapes from 6 files" % len(expected) in out, "summary counts the stored shapes: " + out[:300])
         check("ignored 1 file of another type" in out, "the .md file is ignored and said so: " + out[:300])
         check(stored_count(port) == len(expected), "the server holds every good shape")
         for where, reason in [("catalogue.geojson: feature 201", "has no geometry"),
                               ("more.ndjson: line 4", "not valid JSON"),
                               ("more.ndjson: line 7", "geometry"),
                               ("more.ndjson: line 11", "not valid JSON"),
+                              ("brackets.geojson: feature 3 (id BR-02)", "geometry"),
                               ("sketches.wkt: line 5", "geometry"),
                               ("panel.svg: line 5, <polygon> 3", "transform"),
                               ("panel.svg: line 6, <polygon> 4", "points attribute"),
                               ("truncated.json: line 2, byte offset", "not valid JSON")]:
             listed = [line for line in out.splitlines() if where in line]
             check(len(listed) == 1 and reason in listed[0], "rejection listed with its place: %s / %s" % (where, reason))
-        check("rejected 8 inputs" in out, "eight rejections counted")
+        check("rejected 9 inputs" in out, "nine rejections counted")
         check("progress:" in err, "plain progress lines when not on a terminal")
 
         status, slot = call(port, "GET", "/v1/collections/parts/shapes/slot")
