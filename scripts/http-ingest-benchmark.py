@@ -7,7 +7,12 @@ shapes/s from the first request to the last reply; asserts nothing. Request bodi
 before the clock starts. Builds nothing: run after a Release build (build/server/waymarkd), or
 name another binary in WAYMARKD.
 
-Usage: scripts/http-ingest-benchmark.py [SHAPES (30000)] [CONNECTIONS (1)] [LINES (1000)]
+With --cli ndjson or --cli geojson the same shapes are written to one file of that format
+(a FeatureCollection for geojson) and loaded with `waymark ingest --connections CONNECTIONS
+--batch LINES` (build/clients/cli/waymark, or WAYMARK_CLI): the clock covers the whole command,
+reading and converting the file included.
+
+Usage: scripts/http-ingest-benchmark.py [SHAPES (30000)] [CONNECTIONS (1)] [LINES (1000)] [--cli ndjson|geojson]
 """
 import http.client
 import json
@@ -25,9 +30,17 @@ TOKEN = "ingest-benchmark-" + os.urandom(8).hex()
 
 
 def main():
-    shapes = int(sys.argv[1]) if len(sys.argv) > 1 else 30000
-    connections = int(sys.argv[2]) if len(sys.argv) > 2 else 1
-    per_request = int(sys.argv[3]) if len(sys.argv) > 3 else 1000
+    arguments = sys.argv[1:]
+    cli_format = None
+    if "--cli" in arguments:
+        at = arguments.index("--cli")
+        cli_format = arguments[at + 1] if at + 1 < len(arguments) else None
+        if cli_format not in ("ndjson", "geojson"):
+            sys.exit("--cli takes ndjson or geojson")
+        del arguments[at:at + 2]
+    shapes = int(arguments[0]) if len(arguments) > 0 else 30000
+    connections = int(arguments[1]) if len(arguments) > 1 else 1
+    per_request = int(arguments[2]) if len(arguments) > 2 else 1000
     random.seed(1)
     templates = []
     for _ in range(200):
@@ -71,6 +84,8 @@ def main():
 
         request(http.client.HTTPConnection("127.0.0.1", address, timeout=600), "PUT", "/v1/collections/walks",
                 json.dumps({"landmarks": {"count": 64}, "frame": "unit"}), "application/json")
+        if cli_format:
+            return load_with_cli(work, address, bodies, cli_format, shapes, connections, per_request)
         next_body = iter(range(len(bodies)))
         lock = threading.Lock()
         errors = []
@@ -102,6 +117,30 @@ def main():
         server.terminate()
         server.wait()
         subprocess.run(["rm", "-rf", work])
+
+
+def load_with_cli(work, address, bodies, cli_format, shapes, connections, per_request):
+    folder = os.path.join(work, "input")
+    os.makedirs(folder)
+    lines = [line for body in bodies for line in body.splitlines()]
+    if cli_format == "ndjson":
+        with open(os.path.join(folder, "walks.ndjson"), "w") as f:
+            f.write("\n".join(lines) + "\n")
+    else:
+        features = []
+        for line in lines:
+            shape = json.loads(line)
+            features.append({"type": "Feature", "id": shape["id"], "geometry": shape["geometry"], "properties": {}})
+        with open(os.path.join(folder, "walks.geojson"), "w") as f:
+            json.dump({"type": "FeatureCollection", "features": features}, f)
+    cli = os.environ.get("WAYMARK_CLI", os.path.join(ROOT, "build/clients/cli/waymark"))
+    started = time.monotonic()
+    subprocess.run([cli, "ingest", "walks", folder, "--server", f"http://127.0.0.1:{address}", "--token", TOKEN,
+                    "--connections", str(connections), "--batch", str(per_request), "--progress", "none"],
+                   check=True, stdout=subprocess.DEVNULL)
+    seconds = time.monotonic() - started
+    print(f"waymark ingest of one {cli_format} file: {shapes} shapes of 64 vertices, batches of {per_request}, "
+          f"{connections} connection(s): {seconds:.2f} s = {shapes / seconds:,.0f} shapes/s")
 
 
 main()
