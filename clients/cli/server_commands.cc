@@ -8,6 +8,7 @@
 
 #include "clients/cli/server_connection.h"
 #include "clients/cli/shape_sources.h"
+#include "sketch/geometry/plain_json.h"
 
 namespace waymark::cli {
 namespace {
@@ -67,6 +68,78 @@ Result<Json> shape_operand(const std::string& operand) {
     return parsed;
   }
   return Json(*text);
+}
+
+// A page of a listing in the plain form the server writes it, {"next_after": null or a plain
+// string, "shapes": [{"geometry": {...}, "id": a plain string, "metadata": {...}}, ...]}, as
+// the features of an export, each written from the page's text (geometry and metadata copied,
+// not parsed and printed again) exactly as a JSON document of it would print. nullopt for any
+// other page, which is then read as a document.
+struct ExportPage {
+  std::vector<std::string> features;
+  std::optional<std::string> next_after;
+};
+std::optional<ExportPage> plain_export_page(std::string_view text) {
+  PlainJsonCursor cursor(text);
+  ExportPage page;
+  bool has_next = false, has_shapes = false;
+  cursor.skip_spaces();
+  if (!cursor.take('{')) return std::nullopt;
+  while (true) {
+    std::string_view key, value;
+    if (!cursor.read_member_name(key)) return std::nullopt;
+    if (key == "next_after" && !has_next) {
+      has_next = true;
+      if (cursor.read_plain_string(value)) {
+        page.next_after = std::string(value);
+      } else if (!cursor.take_null()) {
+        return std::nullopt;
+      }
+    } else if (key == "shapes" && !has_shapes) {
+      has_shapes = true;
+      if (!cursor.take('[')) return std::nullopt;
+      cursor.skip_spaces();
+      for (bool first = true; !cursor.take(']'); first = false) {
+        if (!first && !cursor.take(',')) return std::nullopt;
+        cursor.skip_spaces();
+        std::string_view geometry, id, metadata, name;
+        if (!cursor.take('{') || !cursor.read_member_name(name) || name != "geometry" ||
+            !cursor.skip_container(geometry) || geometry.front() != '{' || !cursor.take(',') ||
+            !cursor.read_member_name(name) || name != "id" || !cursor.read_plain_string(id) || !cursor.take(',') ||
+            !cursor.read_member_name(name) || name != "metadata" || !cursor.skip_container(metadata) ||
+            metadata.front() != '{' || !cursor.take('}')) {
+          return std::nullopt;
+        }
+        std::string feature = "{\"geometry\":";
+        feature.append(geometry).append(",\"id\":\"").append(id).append("\",\"properties\":");
+        feature.append(metadata).append(",\"type\":\"Feature\"}");
+        page.features.push_back(std::move(feature));
+        cursor.skip_spaces();
+      }
+    } else {
+      return std::nullopt;
+    }
+    cursor.skip_spaces();
+    if (cursor.take('}')) break;
+    if (!cursor.take(',')) return std::nullopt;
+  }
+  cursor.skip_spaces();
+  if (!cursor.at_end() || !has_next || !has_shapes) return std::nullopt;
+  return page;
+}
+
+// The features of a page read as a JSON document (any page plain_export_page leaves).
+ExportPage export_page_of(Json& page) {
+  ExportPage out;
+  for (Json& shape : page["shapes"]) {
+    const Json feature = {{"type", "Feature"},
+                          {"id", shape["id"]},
+                          {"geometry", std::move(shape["geometry"])},
+                          {"properties", std::move(shape["metadata"])}};
+    out.features.push_back(feature.dump());
+  }
+  if (!page["next_after"].is_null()) out.next_after = page["next_after"].get<std::string>();
+  return out;
 }
 
 }  // namespace
@@ -197,20 +270,20 @@ int export_command(const std::vector<std::string>& words) {
   while (true) {
     std::string target = collection_path(collection) + "/shapes?limit=1000";
     if (!after.empty()) target += "&after=" + url_encode(after);
-    Result<Json> page = json_reply((*client)->send("GET", target));
+    Result<HttpReply> reply = (*client)->send("GET", target);
+    std::optional<ExportPage> page;
+    if (reply && reply->status == 200) page = plain_export_page(reply->body);
     if (!page) {
-      if (output) std::filesystem::remove(partial);
-      return server_failure("export", page.status());
+      Result<Json> document = json_reply(reply);
+      if (!document) {
+        if (output) std::filesystem::remove(partial);
+        return server_failure("export", document.status());
+      }
+      page = export_page_of(*document);
     }
-    for (Json& shape : (*page)["shapes"]) {
-      const Json feature = {{"type", "Feature"},
-                            {"id", shape["id"]},
-                            {"geometry", std::move(shape["geometry"])},
-                            {"properties", std::move(shape["metadata"])}};
-      out << (count++ == 0 ? "\n" : ",\n") << feature.dump();
-    }
-    if ((*page)["next_after"].is_null()) break;
-    after = (*page)["next_after"].get<std::string>();
+    for (const std::string& feature : page->features) out << (count++ == 0 ? "\n" : ",\n") << feature;
+    if (!page->next_after) break;
+    after = *page->next_after;
   }
   out << "\n]}\n";
   out.flush();

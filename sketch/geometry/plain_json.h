@@ -40,6 +40,12 @@ class PlainJsonCursor {
   // The object or array that starts here, passed over by its brackets (brackets inside strings
   // skipped); `out` is its text, which the caller still has to read.
   bool skip_container(std::string_view& out);
+  // The literal null.
+  bool take_null() {
+    if (text_.substr(position_, 4) != "null") return false;
+    position_ += 4;
+    return true;
+  }
 
  private:
   bool skip_digits();
