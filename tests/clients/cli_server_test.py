@@ -240,6 +240,18 @@ def main():
                                                                                          geometry["coordinates"]))))]
         check(not mismatched, "exported geometry and metadata equal the input: %s" % mismatched[:5])
         check(not os.path.exists(export_path + ".partial"), "no partial file left behind")
+        # A page the CLI cannot copy as text (an id outside printable ASCII) is read as a JSON
+        # document; its export is the same as for any other page.
+        call(port, "PUT", "/v1/collections/accents", {"landmarks": {"count": 16}})
+        accents = {"rondelle-\u00e9": ({"type": "LineString", "coordinates": [[0, 0], [2, 1]]}, {"finish": "zinc \"A\""}),
+                   "washer-2": ({"type": "LineString", "coordinates": [[1, 1], [3, 0.5]]}, {})}
+        call(port, "POST", "/v1/collections/accents/shapes",
+             "".join(json.dumps({"id": i, "geometry": g, "metadata": m}) + "\n" for i, (g, m) in accents.items()))
+        accents_path = os.path.join(work, "accents.geojson")
+        code, out, err = cli(port, "export", "accents", "--output", accents_path)
+        with open(accents_path, encoding="utf-8") as f:
+            exported = {feature["id"]: (feature["geometry"], feature["properties"]) for feature in json.load(f)["features"]}
+        check(code == 0 and exported == accents, "export of a page read as a document: %s" % exported)
 
         # --- resume after the loader is killed ----------------------------------------------------
         call(port, "PUT", "/v1/collections/big", {"frame": "centered", "landmarks": {"count": 16, "domain": [-80, -80, 80, 80]}})
