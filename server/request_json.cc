@@ -32,19 +32,11 @@ std::optional<PlainBulkLine> read_plain_bulk_line(std::string_view line, const S
     slot = value;
     return true;
   };
-  cursor.skip_spaces();
-  if (!cursor.take('{')) return std::nullopt;
-  while (true) {
-    std::string_view key;
-    if (!cursor.read_member_name(key)) return std::nullopt;
-    if (!((key == "id" && read_into(id, true)) || (key == "geometry" && read_into(geometry, false)) ||
-          (key == "metadata" && read_into(metadata, false)))) {
-      return std::nullopt;
-    }
-    cursor.skip_spaces();
-    if (cursor.take('}')) break;
-    if (!cursor.take(',')) return std::nullopt;
-  }
+  const bool plain = cursor.read_object([&](std::string_view key) {
+    return (key == "id" && read_into(id, true)) || (key == "geometry" && read_into(geometry, false)) ||
+           (key == "metadata" && read_into(metadata, false));
+  });
+  if (!plain) return std::nullopt;
   cursor.skip_spaces();
   if (!cursor.at_end() || !id || id->empty() || !geometry) return std::nullopt;
   ParseOptions options;

@@ -83,48 +83,42 @@ std::optional<ExportPage> plain_export_page(std::string_view text) {
   PlainJsonCursor cursor(text);
   ExportPage page;
   bool has_next = false, has_shapes = false;
-  cursor.skip_spaces();
-  if (!cursor.take('{')) return std::nullopt;
-  while (true) {
-    std::string_view key, value;
-    if (!cursor.read_member_name(key)) return std::nullopt;
+  // One shape: its members in the order the server writes them.
+  auto read_shape = [&]() {
+    std::string_view geometry, id, metadata;
+    int member = 0;
+    const bool plain = cursor.read_object([&](std::string_view name) {
+      switch (member++) {
+        case 0: return name == "geometry" && cursor.skip_container(geometry) && geometry.front() == '{';
+        case 1: return name == "id" && cursor.read_plain_string(id);
+        case 2: return name == "metadata" && cursor.skip_container(metadata) && metadata.front() == '{';
+        default: return false;
+      }
+    });
+    if (!plain || member != 3) return false;
+    std::string feature = "{\"geometry\":";
+    feature.append(geometry).append(",\"id\":\"").append(id).append("\",\"properties\":");
+    feature.append(metadata).append(",\"type\":\"Feature\"}");
+    page.features.push_back(std::move(feature));
+    return true;
+  };
+  const bool plain = cursor.read_object([&](std::string_view key) {
+    std::string_view value;
     if (key == "next_after" && !has_next) {
       has_next = true;
-      if (cursor.read_plain_string(value)) {
-        page.next_after = std::string(value);
-      } else if (!cursor.take_null()) {
-        return std::nullopt;
-      }
-    } else if (key == "shapes" && !has_shapes) {
-      has_shapes = true;
-      if (!cursor.take('[')) return std::nullopt;
-      cursor.skip_spaces();
-      for (bool first = true; !cursor.take(']'); first = false) {
-        if (!first && !cursor.take(',')) return std::nullopt;
-        cursor.skip_spaces();
-        std::string_view geometry, id, metadata, name;
-        if (!cursor.take('{') || !cursor.read_member_name(name) || name != "geometry" ||
-            !cursor.skip_container(geometry) || geometry.front() != '{' || !cursor.take(',') ||
-            !cursor.read_member_name(name) || name != "id" || !cursor.read_plain_string(id) || !cursor.take(',') ||
-            !cursor.read_member_name(name) || name != "metadata" || !cursor.skip_container(metadata) ||
-            metadata.front() != '{' || !cursor.take('}')) {
-          return std::nullopt;
-        }
-        std::string feature = "{\"geometry\":";
-        feature.append(geometry).append(",\"id\":\"").append(id).append("\",\"properties\":");
-        feature.append(metadata).append(",\"type\":\"Feature\"}");
-        page.features.push_back(std::move(feature));
-        cursor.skip_spaces();
-      }
-    } else {
-      return std::nullopt;
+      if (cursor.take_null()) return true;
+      if (!cursor.read_plain_string(value)) return false;
+      page.next_after = std::string(value);
+      return true;
     }
-    cursor.skip_spaces();
-    if (cursor.take('}')) break;
-    if (!cursor.take(',')) return std::nullopt;
-  }
+    if (key == "shapes" && !has_shapes) {
+      has_shapes = true;
+      return cursor.read_array(read_shape);
+    }
+    return false;
+  });
   cursor.skip_spaces();
-  if (!cursor.at_end() || !has_next || !has_shapes) return std::nullopt;
+  if (!plain || !cursor.at_end() || !has_next || !has_shapes) return std::nullopt;
   return page;
 }
 

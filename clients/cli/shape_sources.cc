@@ -81,68 +81,54 @@ std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::stri
   PlainJsonCursor cursor(text);
   std::vector<PlainFeature> features;
   bool is_collection = false, has_features = false;
-  cursor.skip_spaces();
-  if (!cursor.take('{')) return std::nullopt;
-  while (true) {
-    std::string_view key, value;
-    if (!cursor.read_member_name(key)) return std::nullopt;
-    if (key == "type") {
-      if (!cursor.read_plain_string(value) || value != "FeatureCollection") return std::nullopt;
-      is_collection = true;
-    } else if (key == "features") {
-      if (has_features) return std::nullopt;
-      has_features = true;
-      if (!cursor.take('[')) return std::nullopt;
-      cursor.skip_spaces();
-      for (bool first = true; !cursor.take(']'); first = false) {
-        if (!first && !cursor.take(',')) return std::nullopt;
-        cursor.skip_spaces();
-        PlainFeature feature;
-        bool is_feature = false, has_id = false;
-        if (!cursor.take('{')) return std::nullopt;
-        while (true) {
-          std::string_view name;
-          if (!cursor.read_member_name(name)) return std::nullopt;
-          if (name == "type") {
-            if (!cursor.read_plain_string(value) || value != "Feature") return std::nullopt;
-            is_feature = true;
-          } else if (name == "id") {
-            if (has_id) return std::nullopt;  // a repeated member: the document reading keeps the last
-            has_id = true;
-            const std::size_t start = cursor.position();
-            double number;
-            if (cursor.read_plain_string(feature.id)) {
-              if (feature.id.empty()) return std::nullopt;
-            } else if (cursor.read_number(number)) {
-              feature.id = text.substr(start, cursor.position() - start);
-              feature.id_is_number = true;
-            } else {
-              return std::nullopt;
-            }
-          } else if (name == "geometry" || name == "properties") {
-            std::string_view& slot = name == "geometry" ? feature.geometry : feature.properties;
-            if (!slot.empty() || !cursor.skip_container(value) || value.front() != '{') return std::nullopt;
-            slot = value;
-          } else if (!skip_plain_value(cursor)) {
-            return std::nullopt;
-          }
-          cursor.skip_spaces();
-          if (cursor.take('}')) break;
-          if (!cursor.take(',')) return std::nullopt;
-        }
-        if (!is_feature || feature.geometry.empty()) return std::nullopt;
-        features.push_back(feature);
-        cursor.skip_spaces();
+  // One feature; a repeated member gives up (the document reading keeps the last one).
+  auto read_feature = [&]() {
+    PlainFeature feature;
+    bool is_feature = false, has_id = false;
+    const bool plain = cursor.read_object([&](std::string_view name) {
+      std::string_view value;
+      if (name == "type") {
+        is_feature = cursor.read_plain_string(value) && value == "Feature";
+        return is_feature;
       }
-    } else if (!skip_plain_value(cursor)) {
-      return std::nullopt;
+      if (name == "id") {
+        if (has_id) return false;
+        has_id = true;
+        const std::size_t start = cursor.position();
+        double number;
+        if (cursor.read_plain_string(feature.id)) return !feature.id.empty();
+        if (!cursor.read_number(number)) return false;
+        feature.id = text.substr(start, cursor.position() - start);
+        feature.id_is_number = true;
+        return true;
+      }
+      if (name == "geometry" || name == "properties") {
+        std::string_view& slot = name == "geometry" ? feature.geometry : feature.properties;
+        if (!slot.empty() || !cursor.skip_container(value) || value.front() != '{') return false;
+        slot = value;
+        return true;
+      }
+      return skip_plain_value(cursor);
+    });
+    if (!plain || !is_feature || feature.geometry.empty()) return false;
+    features.push_back(feature);
+    return true;
+  };
+  const bool plain = cursor.read_object([&](std::string_view key) {
+    std::string_view value;
+    if (key == "type") {
+      is_collection = cursor.read_plain_string(value) && value == "FeatureCollection";
+      return is_collection;
     }
-    cursor.skip_spaces();
-    if (cursor.take('}')) break;
-    if (!cursor.take(',')) return std::nullopt;
-  }
+    if (key == "features") {
+      if (has_features) return false;
+      has_features = true;
+      return cursor.read_array(read_feature);
+    }
+    return skip_plain_value(cursor);
+  });
   cursor.skip_spaces();
-  if (!cursor.at_end() || !is_collection || !has_features) return std::nullopt;
+  if (!plain || !cursor.at_end() || !is_collection || !has_features) return std::nullopt;
   return features;
 }
 
@@ -420,10 +406,8 @@ void read_svg(const fs::path& path, const std::string& text, const std::function
 std::optional<std::string_view> plain_line_id(std::string_view line) {
   PlainJsonCursor cursor(line);
   std::optional<std::string_view> id, geometry, metadata;
-  if (!cursor.take('{')) return std::nullopt;
-  while (true) {
-    std::string_view key, value;
-    if (!cursor.read_member_name(key)) return std::nullopt;
+  const bool plain = cursor.read_object([&](std::string_view key) {
+    std::string_view value;
     if (key == "id" && !id && cursor.read_plain_string(value)) {
       id = value;
     } else if (key == "geometry" && !geometry &&
@@ -432,14 +416,12 @@ std::optional<std::string_view> plain_line_id(std::string_view line) {
     } else if (key == "metadata" && !metadata && cursor.skip_container(value) && value.front() == '{') {
       metadata = value;
     } else {
-      return std::nullopt;
+      return false;
     }
-    cursor.skip_spaces();
-    if (cursor.take('}')) break;
-    if (!cursor.take(',')) return std::nullopt;
-  }
+    return true;
+  });
   cursor.skip_spaces();
-  if (!cursor.at_end() || !id || id->empty() || !geometry) return std::nullopt;
+  if (!plain || !cursor.at_end() || !id || id->empty() || !geometry) return std::nullopt;
   return id;
 }
 

@@ -40,6 +40,40 @@ class PlainJsonCursor {
   // The object or array that starts here, passed over by its brackets (brackets inside strings
   // skipped); `out` is its text, which the caller still has to read.
   bool skip_container(std::string_view& out);
+  // The object that starts here (after spaces), member by member: read_member(name) is called
+  // with the cursor at each member's value, which it must read, returning false to give up.
+  // True once the closing brace is read.
+  template <typename ReadMember>
+  bool read_object(ReadMember read_member) {
+    skip_spaces();
+    if (!take('{')) return false;
+    skip_spaces();
+    if (take('}')) return true;
+    while (true) {
+      std::string_view name;
+      if (!read_member_name(name) || !read_member(name)) return false;
+      skip_spaces();
+      if (take('}')) return true;
+      if (!take(',')) return false;
+    }
+  }
+  // The array that starts here (after spaces), element by element: read_element() is called
+  // with the cursor at each element, which it must read, returning false to give up. True once
+  // the closing bracket is read.
+  template <typename ReadElement>
+  bool read_array(ReadElement read_element) {
+    skip_spaces();
+    if (!take('[')) return false;
+    skip_spaces();
+    if (take(']')) return true;
+    while (true) {
+      skip_spaces();
+      if (!read_element()) return false;
+      skip_spaces();
+      if (take(']')) return true;
+      if (!take(',')) return false;
+    }
+  }
   // The literal null.
   bool take_null() {
     if (text_.substr(position_, 4) != "null") return false;
