@@ -45,34 +45,17 @@ class PlainJsonCursor {
   // True once the closing brace is read.
   template <typename ReadMember>
   bool read_object(ReadMember read_member) {
-    skip_spaces();
-    if (!take('{')) return false;
-    skip_spaces();
-    if (take('}')) return true;
-    while (true) {
+    return read_sequence('{', '}', [&] {
       std::string_view name;
-      if (!read_member_name(name) || !read_member(name)) return false;
-      skip_spaces();
-      if (take('}')) return true;
-      if (!take(',')) return false;
-    }
+      return read_member_name(name) && read_member(name);
+    });
   }
   // The array that starts here (after spaces), element by element: read_element() is called
   // with the cursor at each element, which it must read, returning false to give up. True once
   // the closing bracket is read.
   template <typename ReadElement>
   bool read_array(ReadElement read_element) {
-    skip_spaces();
-    if (!take('[')) return false;
-    skip_spaces();
-    if (take(']')) return true;
-    while (true) {
-      skip_spaces();
-      if (!read_element()) return false;
-      skip_spaces();
-      if (take(']')) return true;
-      if (!take(',')) return false;
-    }
+    return read_sequence('[', ']', read_element);
   }
   // The literal null.
   bool take_null() {
@@ -83,6 +66,22 @@ class PlainJsonCursor {
 
  private:
   bool skip_digits();
+  // Items between `open` and `close`, separated by commas, each read by read_item() from its
+  // first character; the one loop behind read_object and read_array.
+  template <typename ReadItem>
+  bool read_sequence(char open, char close, ReadItem read_item) {
+    skip_spaces();
+    if (!take(open)) return false;
+    skip_spaces();
+    if (take(close)) return true;
+    while (true) {
+      skip_spaces();
+      if (!read_item()) return false;
+      skip_spaces();
+      if (take(close)) return true;
+      if (!take(',')) return false;
+    }
+  }
 
   std::string_view text_;
   std::size_t position_ = 0;
