@@ -15,10 +15,10 @@ RUN cmake -S . -B build -G Ninja -DCMAKE_BUILD_TYPE=Release -DWAYMARK_BUILD_TEST
 
 FROM debian:bookworm-slim
 # The shared libraries waymarkd links (FAISS is linked statically; OpenBLAS serves its BLAS and
-# LAPACK), pugixml for the CLI's SVG reader, and curl for the health check.
+# LAPACK; tcmalloc is its allocator), pugixml for the CLI's SVG reader, and curl for the health check.
 RUN apt-get update \
  && apt-get install -y --no-install-recommends librocksdb7.8 libspdlog1.10 libfmt9 libopenblas0-pthread libgomp1 \
-      libxxhash0 libssl3 libpugixml1v5 curl \
+      libxxhash0 libtcmalloc-minimal4 libssl3 libpugixml1v5 curl \
  && rm -rf /var/lib/apt/lists/* \
  && useradd --system --uid 10001 --home-dir /var/lib/waymark --shell /usr/sbin/nologin waymark \
  && mkdir -p /var/lib/waymark /etc/waymark && chown waymark:waymark /var/lib/waymark

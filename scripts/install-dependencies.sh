@@ -21,6 +21,7 @@ packages=(
   libgeos-dev libgeos++-dev         # outside reference for distances (tests, benchmarks)
   librocksdb-dev                    # embedded storage engine (crash-safe WAL, atomic write batches)
   libxxhash-dev                     # xxHash: checksums of index snapshots (hundreds of MB)
+  libgoogle-perftools-dev           # tcmalloc: the allocator of every program that opens a store
   hershey-fonts-data                # real single-stroke glyphs for tests and evaluation
   libfreetype-dev fonts-dejavu-core # real glyph outlines (TrueType) for tests
   python3-shapely python3-scipy     # outside references, run with /usr/bin/python3
