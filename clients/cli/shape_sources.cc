@@ -81,16 +81,17 @@ std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::stri
   PlainJsonCursor cursor(text);
   std::vector<PlainFeature> features;
   bool is_collection = false, has_features = false;
+  // Reads a "type" member's value; whether it is `expected`.
+  auto type_is = [&cursor](std::string_view expected) {
+    std::string_view value;
+    return cursor.read_plain_string(value) && value == expected;
+  };
   // One feature; a repeated member gives up (the document reading keeps the last one).
   auto read_feature = [&]() {
     PlainFeature feature;
     bool is_feature = false, has_id = false;
     const bool plain = cursor.read_object([&](std::string_view name) {
-      std::string_view value;
-      if (name == "type") {
-        is_feature = cursor.read_plain_string(value) && value == "Feature";
-        return is_feature;
-      }
+      if (name == "type") return is_feature = type_is("Feature");
       if (name == "id") {
         if (has_id) return false;
         has_id = true;
@@ -104,6 +105,7 @@ std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::stri
       }
       if (name == "geometry" || name == "properties") {
         std::string_view& slot = name == "geometry" ? feature.geometry : feature.properties;
+        std::string_view value;
         if (!slot.empty() || !cursor.skip_container(value) || value.front() != '{') return false;
         slot = value;
         return true;
@@ -115,11 +117,7 @@ std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::stri
     return true;
   };
   const bool plain = cursor.read_object([&](std::string_view key) {
-    std::string_view value;
-    if (key == "type") {
-      is_collection = cursor.read_plain_string(value) && value == "FeatureCollection";
-      return is_collection;
-    }
+    if (key == "type") return is_collection = type_is("FeatureCollection");
     if (key == "features") {
       if (has_features) return false;
       has_features = true;

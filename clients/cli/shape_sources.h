@@ -35,7 +35,7 @@ struct SourceShape {
   // The NDJSON line to send: an .ndjson input line itself when it holds nothing but "id",
   // "geometry" and "metadata", or made from plain text (SourceOptions::pass_plain_text), so
   // that it is sent as read instead of printed again from `geometry` and `metadata`.
-  std::string line;
+  std::string line = {};
 };
 
 struct SourceProblem {
