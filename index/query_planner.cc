@@ -311,11 +311,12 @@ class MetadataFilter {
 bool copies_can_refuse(Metric metric) { return metric == Metric::hausdorff || metric == Metric::frechet; }
 
 // How much wider than threshold + displacement a copy's decision is made, relative to the
-// largest coordinate magnitude of the query and the copy. The decision procedures resolve
-// distances only to about √(machine epsilon) × that magnitude where two curves nearly
-// coincide (free-space intervals from a difference of squares), and a copy lies about 1e-8 of
-// it from its shape: ManyTiedCopiesKeepTheSmallestIdsAndMatchTheFullScan refused tied copies
-// without this margin. Pruning loses nothing measurable at it.
+// largest coordinate magnitude of the query and the copy. A copy lies about 1e-8 of it from its
+// shape, and where two curves nearly coincide the Fréchet decision resolved distances only to
+// about √(machine epsilon) × that magnitude until its free intervals stopped cancelling
+// (frechet.cc, free_interval): ManyTiedCopiesKeepTheSmallestIdsAndMatchTheFullScan refused
+// tied copies without this margin then. It stays as insurance: pruning loses nothing
+// measurable at it.
 constexpr double kCopyDecisionMargin = 1e-6;
 
 // Whether the shape's float copy (index/resident_copy.h) proves it farther than `threshold`
