@@ -196,7 +196,7 @@ void read_geojson(const fs::path& path, const std::string& text, const SourceOpt
   } else if (type == "Feature") {
     features.push_back(&root);
   } else {
-    emit({path.stem().string(), root, Json::object(), name + ": the geometry"});
+    emit({stem, root, Json::object(), name + ": the geometry"});
     return;
   }
   for (std::size_t i = 0; i < features.size(); ++i) {
