@@ -25,10 +25,7 @@ std::optional<PlainBulkLine> read_plain_bulk_line(std::string_view line, const S
   // reading) or its value is not in the plain form.
   auto read_into = [&](std::optional<std::string_view>& slot, bool is_string) {
     std::string_view value;
-    if (slot || !(is_string ? cursor.read_plain_string(value) : cursor.skip_container(value)) ||
-        (!is_string && value.front() != '{')) {
-      return false;
-    }
+    if (slot || !(is_string ? cursor.read_plain_string(value) : cursor.skip_object(value))) return false;
     slot = value;
     return true;
   };

@@ -89,9 +89,9 @@ std::optional<ExportPage> plain_export_page(std::string_view text) {
     int member = 0;
     const bool plain = cursor.read_object([&](std::string_view name) {
       switch (member++) {
-        case 0: return name == "geometry" && cursor.skip_container(geometry) && geometry.front() == '{';
+        case 0: return name == "geometry" && cursor.skip_object(geometry);
         case 1: return name == "id" && cursor.read_plain_string(id);
-        case 2: return name == "metadata" && cursor.skip_container(metadata) && metadata.front() == '{';
+        case 2: return name == "metadata" && cursor.skip_object(metadata);
         default: return false;
       }
     });

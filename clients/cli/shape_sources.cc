@@ -106,7 +106,7 @@ std::optional<std::vector<PlainFeature>> read_plain_feature_collection(std::stri
       if (name == "geometry" || name == "properties") {
         std::string_view& slot = name == "geometry" ? feature.geometry : feature.properties;
         std::string_view value;
-        if (!slot.empty() || !cursor.skip_container(value) || value.front() != '{') return false;
+        if (!slot.empty() || !cursor.skip_object(value)) return false;
         slot = value;
         return true;
       }
@@ -408,10 +408,9 @@ std::optional<std::string_view> plain_line_id(std::string_view line) {
     std::string_view value;
     if (key == "id" && !id && cursor.read_plain_string(value)) {
       id = value;
-    } else if (key == "geometry" && !geometry &&
-               (cursor.read_plain_string(value) || (cursor.skip_container(value) && value.front() == '{'))) {
+    } else if (key == "geometry" && !geometry && (cursor.read_plain_string(value) || cursor.skip_object(value))) {
       geometry = value;
-    } else if (key == "metadata" && !metadata && cursor.skip_container(value) && value.front() == '{') {
+    } else if (key == "metadata" && !metadata && cursor.skip_object(value)) {
       metadata = value;
     } else {
       return false;

@@ -40,6 +40,8 @@ class PlainJsonCursor {
   // The object or array that starts here, passed over by its brackets (brackets inside strings
   // skipped); `out` is its text, which the caller still has to read.
   bool skip_container(std::string_view& out);
+  // The same for an object only: false, with nothing read, when the value here is not one.
+  bool skip_object(std::string_view& out) { return !at_end() && text_[position_] == '{' && skip_container(out); }
   // The object that starts here (after spaces), member by member: read_member(name) is called
   // with the cursor at each member's value, which it must read, returning false to give up.
   // True once the closing brace is read.
