@@ -109,6 +109,10 @@ struct QueryStats {
   std::size_t exact_evaluations = 0;
   std::size_t not_applicable = 0;  // stored shapes the metric does not apply to (Fréchet on several parts)
   std::size_t filtered_out = 0;    // candidates whose metadata did not match the filter
+  // Time spent in the vector indexes: the graph's or partitions' search and the candidates'
+  // lower-bound order (fast mode), or the exhaustive index's scan rounds. The rest of a query's
+  // time is the bounds, decisions, store reads and exact distances.
+  double index_milliseconds = 0;
 };
 
 struct QueryAnswer {

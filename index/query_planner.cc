@@ -3,6 +3,7 @@
 #include <rocksdb/iterator.h>
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <cstring>
 #include <deque>
@@ -39,6 +40,21 @@ constexpr std::size_t kFastCandidatesPerHit = 40;
 constexpr std::size_t kPartitionedFastCandidatesPerHit = 100;
 
 const char* const kMetricNames[] = {"hausdorff", "frechet", "discrete-frechet", "sketch"};
+
+// Adds the time from its construction to its destruction to a QueryStats figure.
+class TimeAddedTo {
+ public:
+  explicit TimeAddedTo(double& milliseconds) : milliseconds_(milliseconds) {}
+  ~TimeAddedTo() {
+    milliseconds_ += std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start_).count();
+  }
+  TimeAddedTo(const TimeAddedTo&) = delete;
+  TimeAddedTo& operator=(const TimeAddedTo&) = delete;
+
+ private:
+  double& milliseconds_;
+  const std::chrono::steady_clock::time_point start_ = std::chrono::steady_clock::now();
+};
 
 // The largest coordinate magnitude in `box`.
 double largest_magnitude(const Box& box) {
@@ -385,13 +401,19 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
                              Metric metric, std::optional<std::int64_t> excluded_label, const MetadataFilter& filter,
                              std::size_t first_fetch, std::size_t budget, QueryStats& stats, Threshold threshold,
                              Visit visit, Enough enough) {
-  Result<VectorIndex::Scan> scan = query.generation->index.scan(query.raw, query.generation->compared_dimensions(metric));
+  Result<VectorIndex::Scan> scan = [&] {
+    TimeAddedTo timer(stats.index_milliseconds);
+    return query.generation->index.scan(query.raw, query.generation->compared_dimensions(metric));
+  }();
   if (!scan) return scan.status();
   // The scan is in that order, so every shape not drawn yet has an L∞ difference ≥ the next
   // one's (or the last one drawn), and that bounds its exact distance from below.
   std::size_t fetch = std::min(budget, first_fetch), drawn = 0;
   while (true) {
-    const std::span<const Neighbour> round = scan->next(fetch - drawn);
+    const std::span<const Neighbour> round = [&] {
+      TimeAddedTo timer(stats.index_milliseconds);
+      return scan->next(fetch - drawn);
+    }();
     drawn += round.size();
     for (const Neighbour& n : round) {
       // Once this shape is ruled out, so is every later one: none of them is read.
@@ -439,19 +461,24 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     // index's vectors, in memory; curve ends included for Fréchet), so that once the next
     // bound passes the k-th best distance the rest cannot enter the answer and are never read
     // from the store.
-    Result<std::vector<Neighbour>> candidates = approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0));
-    if (!candidates) return candidates.status();
-    std::vector<std::int64_t> labels;
-    labels.reserve(candidates->size());
-    for (const Neighbour& n : *candidates) {
-      if (n.label != excluded_label) labels.push_back(n.label);
-    }
-    // Labels without a vector are tombstones (deleted or replaced since the build): left out.
-    Result<std::vector<Neighbour>> by_bound = query.generation->index.distances_to(
-        labels, query.raw, query.generation->compared_dimensions(options.metric));
+    Result<std::vector<Neighbour>> by_bound = [&]() -> Result<std::vector<Neighbour>> {
+      TimeAddedTo timer(answer.stats.index_milliseconds);
+      Result<std::vector<Neighbour>> candidates = approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0));
+      if (!candidates) return candidates.status();
+      std::vector<std::int64_t> labels;
+      labels.reserve(candidates->size());
+      for (const Neighbour& n : *candidates) {
+        if (n.label != excluded_label) labels.push_back(n.label);
+      }
+      // Labels without a vector are tombstones (deleted or replaced since the build): left out.
+      Result<std::vector<Neighbour>> distances = query.generation->index.distances_to(
+          labels, query.raw, query.generation->compared_dimensions(options.metric));
+      if (!distances) return distances.status();
+      std::sort(distances->begin(), distances->end(),
+                [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
+      return distances;
+    }();
     if (!by_bound) return by_bound.status();
-    std::sort(by_bound->begin(), by_bound->end(),
-              [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; });
     for (const Neighbour& n : *by_bound) {
       if (options.metric != Metric::sketch && query.lower_bound_from(n.distance) > selection.threshold()) {
         answer.stats.pruned_by_sketch_bound += 1;

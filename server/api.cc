@@ -413,6 +413,7 @@ Json answer_json(const QueryAnswer& answer, Metric metric, bool range, double mi
             {"exact_evaluations", s.exact_evaluations},
             {"not_applicable", s.not_applicable},
             {"filtered_out", s.filtered_out},
+            {"index_milliseconds", s.index_milliseconds},
             {"milliseconds", milliseconds}}}};
 }
 
@@ -932,10 +933,10 @@ HttpResponse Api::dispatch(const HttpRequest& request, Context& context) {
   const double milliseconds = milliseconds_since(start);
   metrics_.record_query(counts_of(*answer));
   if (milliseconds > static_cast<double>(config_.slow_query_ms)) {
-    spdlog::warn("slow query: collection={} route={} metric={} k={} ms={:.1f} candidates={} exact_evaluations={} "
-                 "certified={}",
-                 name, pattern, metric_name(*metric), k, milliseconds, answer->stats.candidates_fetched,
-                 answer->stats.exact_evaluations, answer->certified);
+    spdlog::warn("slow query: collection={} route={} metric={} k={} ms={:.1f} index_ms={:.1f} candidates={} "
+                 "exact_evaluations={} certified={}",
+                 name, pattern, metric_name(*metric), k, milliseconds, answer->stats.index_milliseconds,
+                 answer->stats.candidates_fetched, answer->stats.exact_evaluations, answer->certified);
   }
   return json_response(200, answer_json(*answer, *metric, range, milliseconds));
 }

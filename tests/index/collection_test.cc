@@ -1,6 +1,7 @@
 // Durable collections and the query engine: exact mode against a full scan, fast-mode recall,
 // restart, upsert and delete, all-or-nothing batches, damaged records.
 #include <catch2/catch.hpp>
+#include <chrono>
 #include <filesystem>
 #include <fstream>
 #include <nlohmann/json.hpp>
@@ -42,11 +43,16 @@ QueryAnswer exact_answer_equal_to_full_scan(const Collection& collection, const 
   QueryOptions options;
   options.metric = metric;
   options.exact = true;
+  const auto start = std::chrono::steady_clock::now();
   Result<QueryAnswer> exact = collection.nearest(query, options);
+  const double elapsed = std::chrono::duration<double, std::milli>(std::chrono::steady_clock::now() - start).count();
   Result<QueryAnswer> scan = collection.nearest_by_full_scan(query, options);
   REQUIRE((exact.is_ok() && scan.is_ok()));
   INFO(metric_name(metric) << ": exact evaluations " << exact->stats.exact_evaluations);
   CHECK(exact->certified);
+  // The exhaustive scan's rounds were timed, within the query's own time.
+  CHECK(exact->stats.index_milliseconds > 0);
+  CHECK(exact->stats.index_milliseconds <= elapsed);
   require_same(*exact, *scan);
   return *exact;
 }

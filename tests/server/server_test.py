@@ -208,6 +208,8 @@ def check_exact_against_brute_force(server, label):
         got = [(round(r["distance"], 9), r["id"]) for r in answer["results"]]
         check(got == expected, f"{label}exact {metric} equals brute force: {got} vs {expected}")
         check(answer["stats"]["exact_evaluations"] < len(stored), f"{label}exact {metric}: the bounds pruned")
+        check(0 < answer["stats"]["index_milliseconds"] <= answer["stats"]["milliseconds"],
+              f"{label}exact {metric}: the index's share of the time: {answer['stats']}")
 
 
 def run_approximate_index_checks(server):
