@@ -1,6 +1,7 @@
-// The approximate vector index of a graph or partitioned collection: FAISS's HNSW graph
-// (IndexHNSWFlat) or inverted lists (IndexIVFFlat, k-means partitions) over the weighted
-// sketches under L2, for fast-mode candidates on large collections. (Exact mode and range
+// The approximate vector index of a graph or partitioned collection, for fast-mode candidates
+// on large collections: FAISS's HNSW graph (IndexHNSWFlat) over the raw landmark distances
+// under L∞, the order of the sketch lower bound itself, or inverted lists (IndexIVFFlat,
+// k-means partitions) over the weighted landmark distances under L2 (k-means needs L2). (Exact mode and range
 // queries always walk the exhaustive L∞ index, index/vector_index.h, which every collection
 // keeps: only that walk can certify an answer.)
 //
@@ -11,7 +12,7 @@
 // shape under them). A rebuild is due when fresh vectors and tombstones together pass a
 // fraction of the built size (also how IVF is retrained as the collection grows).
 //
-// Candidates are in approximate L2 order, so answers drawn from here are never certified.
+// Candidates are in approximate order, so answers drawn from here are never certified.
 // Thread safety: every member may be called concurrently; build() runs outside any lock and
 // takes the exclusive lock only to swap.
 #pragma once
@@ -62,7 +63,8 @@ struct ApproximateIndexStatus {
 class ApproximateIndex {
  public:
   // kind is graph or partitioned. Raw vectors have `dimension` values; the index compares the
-  // first root_weights.size() (≤ dimension) of them, each times its root weight (sqrt(w_i)).
+  // first root_weights.size() (≤ dimension) of them: as they are (graph), or each times its root
+  // weight sqrt(w_i) (partitioned).
   ApproximateIndex(IndexKind kind, std::vector<double> root_weights, std::size_t dimension,
                    ApproximateIndexSettings settings = {});
   ~ApproximateIndex();
@@ -82,7 +84,7 @@ class ApproximateIndex {
   // minutes, with no lock held until the swap.
   Status build(const VectorIndex::Contents& copy);
 
-  // Up to `count` candidates from the built index (approximate L2 order) followed by up to
+  // Up to `count` candidates from the built index (approximate L∞ or L2 order) followed by up to
   // `count` from the fresh index (L∞ order). failed_precondition when nothing is built.
   Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count) const;
 
@@ -106,7 +108,8 @@ class ApproximateIndex {
   };
   // Reads a snapshot written for `generation` from `in`, which must be seekable: the checksum
   // is verified in a first pass, before anything is parsed. data_loss for a damaged file,
-  // failed_precondition for one of another kind, generation or vector length. Reads only what
+  // failed_precondition for one of another kind, generation, vector length or graph metric
+  // (the weighted L2 graphs of builds before 2026-12-05 are rebuilt). Reads only what
   // never changes here, so it may run on another thread while this index is filled.
   Result<Snapshot> read_snapshot(std::istream& in, std::uint64_t generation) const;
   // Replaces the built index with `snapshot`, then catches up with `all` (the exhaustive index
@@ -121,8 +124,9 @@ class ApproximateIndex {
   std::size_t memory_bytes() const;
 
  private:
-  // The compared values of each raw vector in `raw`, weighted: root_weights_.size() per vector.
-  std::vector<float> weighted(std::span<const float> raw) const;
+  // The compared values of each raw vector in `raw` as the built index holds them:
+  // root_weights_.size() per vector, weighted for a partitioned index.
+  std::vector<float> compared_values(std::span<const float> raw) const;
 
   IndexKind kind_;
   std::vector<double> root_weights_;

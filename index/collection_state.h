@@ -56,9 +56,10 @@ struct Generation {
   Status remove(std::span<const std::int64_t> labels);
   Sketcher sketcher;
   VectorIndex index;  // internally locked: add/remove while queries search
-  // Graph and partitioned collections only. It compares the landmark distances, weighted, for
-  // every metric; fast mode re-ranks its candidates by the L∞ bound of the query's metric,
-  // curve ends included for Fréchet (index/query_planner.cc, run_query).
+  // Graph and partitioned collections only. It compares the landmark distances (under L∞ in a
+  // graph, weighted under L2 in partitions) for every metric; fast mode re-ranks its candidates
+  // by the L∞ bound of the query's metric, curve ends included for Fréchet
+  // (index/query_planner.cc, run_query).
   std::unique_ptr<ApproximateIndex> approximate;
   Point origin;  // the landmark domain's centre: keeps the coordinates' float rounding small
 };

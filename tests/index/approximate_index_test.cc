@@ -2,6 +2,9 @@
 // exact mode unchanged, fresh writes found before any rebuild, deleted shapes never returned,
 // rebuilds when due, the background builder, and the kind surviving a restart.
 #include <catch2/catch.hpp>
+#include <faiss/IndexHNSW.h>
+#include <faiss/impl/io.h>
+#include <faiss/index_io.h>
 #include <rocksdb/db.h>
 #include <xxhash.h>
 #include <nlohmann/json.hpp>
@@ -307,8 +310,9 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
 // where it starts) from the other copies of its figure. Fast mode on a graph or partitioned
 // index, with default settings, must still find them: it scores the approximate index's
 // candidates by the Fréchet bound, curve ends included, and by default asks for enough of
-// them (index/query_planner.cc, kFastCandidatesPerHit). Measured with this seed: graph,
-// Fréchet 0.72 at 20·k candidates, 0.97 at its default 40·k (seeded, invented shapes).
+// them (index/query_planner.cc, kFastCandidatesPerHit). Measured with this seed: the weighted
+// L2 graph of earlier builds, Fréchet 0.72 at 20·k candidates, 0.97 at 40·k; the L∞ graph,
+// 0.985 at 40·k and 0.97 at its default 30·k (seeded, invented shapes).
 TEST_CASE("FastModeFindsFrechetNeighboursOfRingsWithShiftedStarts") {
   SeededRandom random(21);
   std::vector<Shape> figures;
@@ -348,4 +352,54 @@ TEST_CASE("FastModeFindsFrechetNeighboursOfRingsWithShiftedStarts") {
       CHECK(recall.recall() >= 0.95);
     }
   }
+}
+
+// The graph orders by L∞ over the landmark distances, the sketch bound's own metric. Two
+// stored vectors whose order differs under L2: from the origin, (3, 0, 0, 0) is 3 away under
+// both, (2, 2, 2, 2) is 2 under L∞ and 4 under L2. A graph of four vectors is searched exactly.
+TEST_CASE("TheGraphOrdersCandidatesByLinfDistance") {
+  const std::vector<std::int64_t> labels{10, 20, 30, 40};
+  const std::vector<float> vectors{3, 0, 0, 0, 2, 2, 2, 2, 9, 9, 9, 9, 0, 9, 0, 9};
+  ApproximateIndexSettings settings;
+  settings.minimum_size = 1;
+  ApproximateIndex graph(IndexKind::graph, {1.0, 1.0, 1.0, 1.0}, 4, settings);
+  VectorIndex all(4);
+  REQUIRE(all.add(labels, vectors).is_ok());
+  REQUIRE(graph.build(all.copy()).is_ok());
+  const std::vector<float> origin{0, 0, 0, 0};
+  Result<std::vector<Neighbour>> candidates = graph.candidates(origin, 4);
+  REQUIRE(candidates.is_ok());
+  REQUIRE(candidates->size() == 4);
+  CHECK((*candidates)[0].label == 20);
+  CHECK((*candidates)[0].distance == 2.0f);
+  CHECK((*candidates)[1].label == 10);
+  CHECK((*candidates)[1].distance == 3.0f);
+}
+
+// A snapshot of the weighted L2 graph that builds before 2026-12-05 wrote (the same file
+// format, FAISS's flat index inside with METRIC_L2) is refused as a precondition and rebuilt,
+// never searched with the L∞ distance it was not built for.
+TEST_CASE("ASnapshotOfAnL2GraphIsRefused") {
+  const std::vector<std::int64_t> labels{1, 2, 3};
+  const std::vector<float> vectors{0, 0, 0, 1, 1, 1, 2, 2, 2};
+  faiss::IndexHNSWFlat old_graph(3, 32);  // METRIC_L2, as those builds made it
+  old_graph.add(3, vectors.data());
+  faiss::VectorIOWriter faiss_bytes;
+  faiss::write_index(&old_graph, &faiss_bytes);
+  std::string bytes = "WMAPPRX2";  // index/STORE_FORMAT.md, "Approximate index snapshot"
+  auto put_u64 = [&](std::uint64_t value) { bytes.append(reinterpret_cast<const char*>(&value), 8); };
+  put_u64(1);  // graph
+  put_u64(7);  // landmark generation
+  put_u64(0);  // partitions
+  put_u64(labels.size());
+  bytes.append(reinterpret_cast<const char*>(labels.data()), labels.size() * sizeof(std::int64_t));
+  put_u64(faiss_bytes.data.size());
+  bytes.append(reinterpret_cast<const char*>(faiss_bytes.data.data()), faiss_bytes.data.size());
+  put_u64(XXH3_64bits(bytes.data(), bytes.size()));
+  ApproximateIndex graph(IndexKind::graph, {1.0, 1.0, 1.0}, 3);
+  std::istringstream in(bytes);
+  const Result<ApproximateIndex::Snapshot> refused = graph.read_snapshot(in, 7);
+  CHECK(refused.status().code() == StatusCode::failed_precondition);
+  CHECK(refused.status().message() == "snapshot's graph compares by weighted L2 (written by an older build)");
+  CHECK_FALSE(graph.ready());
 }
