@@ -13,6 +13,8 @@
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
 // and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
 // row each (0: the default, 40·k; 100·k for a partitioned index), to show what recall each buys.
+// Each row runs every query before the next row starts, so no row finds a query's data cached
+// by another.
 // A non-exhaustive run times its restarts in child processes: the same program with
 // `--open DIRECTORY COPY_CAPACITY`, which opens the collection, prints the seconds and exits.
 // With WAYMARK_BENCHMARK_KEEP set in the environment the collection is left in the temporary
@@ -237,8 +239,8 @@ int main(int argc, char** argv) {
       std::vector<double> index_times;  // QueryStats::index_milliseconds
       double fetched = 0, refused_by_decision = 0, evaluations = 0;
       int certified = 0;
-      QueryAnswer last;  // this query's answer
-      testing::RecallCount recall, recall_against_certified;  // fast modes: of `last`
+      std::vector<QueryAnswer> answers;  // by query; empty where the mode did not run
+      testing::RecallCount recall, recall_against_certified;  // fast modes
       std::vector<double> kth_ratios;  // fast modes: k-th distance ÷ the certified k-th distance
     };
     std::vector<Mode> modes;
@@ -255,18 +257,22 @@ int main(int argc, char** argv) {
     const std::size_t exact_mode = modes.size(), scan_mode = exact_mode + 1;
     add_mode("exact (certified)", true, false, 0);
     add_mode("full exact scan", true, true, 0);
-    for (std::size_t q = 0; q < queries; ++q) {
-      const Shape query = synthetic(shapes + q, templates);
-      for (Mode& mode : modes) {
-        mode.last = QueryAnswer{};
+    std::vector<Shape> query_shapes;
+    for (std::size_t q = 0; q < queries; ++q) query_shapes.push_back(synthetic(shapes + q, templates));
+    // One mode over every query before the next mode starts: a query run in several modes in a
+    // row would find the graph, vectors and copies it touches already in the CPU's caches for
+    // all but the first, which made later rows look faster than a fresh query is.
+    for (Mode& mode : modes) {
+      mode.answers.resize(queries);
+      for (std::size_t q = 0; q < queries; ++q) {
         if ((mode.scan && q >= scanned_queries) || (mode.exact && !mode.scan && q >= exact_queries)) continue;
         QueryOptions options;
         options.metric = metric;
         options.exact = mode.exact;
         options.candidate_budget = mode.budget;
         const auto start = Clock::now();
-        Result<QueryAnswer> answer = mode.scan ? (*collection)->nearest_by_full_scan(query, options)
-                                               : (*collection)->nearest(query, options);
+        Result<QueryAnswer> answer = mode.scan ? (*collection)->nearest_by_full_scan(query_shapes[q], options)
+                                               : (*collection)->nearest(query_shapes[q], options);
         mode.times.push_back(milliseconds(Clock::now() - start));
         if (!answer) {
           std::fprintf(stderr, "%s\n", answer.status().to_string().c_str());
@@ -277,16 +283,19 @@ int main(int argc, char** argv) {
         mode.refused_by_decision += answer->stats.pruned_by_decision;
         mode.evaluations += answer->stats.exact_evaluations;
         mode.certified += answer->certified;
-        mode.last = std::move(*answer);
+        mode.answers[q] = std::move(*answer);
       }
-      for (std::size_t m = 0; m < exact_mode; ++m) {
-        if (q < scanned_queries) modes[m].recall.add(modes[scan_mode].last, modes[m].last);
+    }
+    for (std::size_t m = 0; m < exact_mode; ++m) {
+      for (std::size_t q = 0; q < queries; ++q) {
+        const QueryAnswer& answer = modes[m].answers[q];
+        if (q < scanned_queries) modes[m].recall.add(modes[scan_mode].answers[q], answer);
         // A certified answer is the full scan's (tests/index check this on every query tried).
-        const QueryAnswer& certified = modes[exact_mode].last;
+        const QueryAnswer& certified = modes[exact_mode].answers[q];
         if (!certified.certified) continue;
-        modes[m].recall_against_certified.add(certified, modes[m].last);
-        if (!certified.hits.empty() && certified.hits.back().distance > 0 && modes[m].last.hits.size() == certified.hits.size()) {
-          modes[m].kth_ratios.push_back(modes[m].last.hits.back().distance / certified.hits.back().distance);
+        modes[m].recall_against_certified.add(certified, answer);
+        if (!certified.hits.empty() && certified.hits.back().distance > 0 && answer.hits.size() == certified.hits.size()) {
+          modes[m].kth_ratios.push_back(answer.hits.back().distance / certified.hits.back().distance);
         }
       }
     }

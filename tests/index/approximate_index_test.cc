@@ -312,7 +312,7 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
 // candidates by the Fréchet bound, curve ends included, and by default asks for enough of
 // them (index/query_planner.cc, kFastCandidatesPerHit). Measured with this seed: the weighted
 // L2 graph of earlier builds, Fréchet 0.72 at 20·k candidates, 0.97 at 40·k; the L∞ graph,
-// 0.985 at 40·k and 0.97 at its default 30·k (seeded, invented shapes).
+// 0.97 at 30·k and 0.985 at its default 40·k (seeded, invented shapes).
 TEST_CASE("FastModeFindsFrechetNeighboursOfRingsWithShiftedStarts") {
   SeededRandom random(21);
   std::vector<Shape> figures;
