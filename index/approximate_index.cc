@@ -6,15 +6,17 @@
 #include <faiss/impl/AuxIndexStructures.h>
 #include <faiss/impl/io.h>
 #include <faiss/index_io.h>
-#include <faiss/utils/Heap.h>
 #include <xxhash.h>
 
 #include <algorithm>
 #include <chrono>
 #include <cmath>
-#include <mutex>
 #include <cstring>
+#include <functional>
+#include <mutex>
 #include <unordered_set>
+#include <utility>
+#include <vector>
 
 #include "sketch/vector_clones.h"
 
@@ -96,14 +98,22 @@ bool use_vectorised_storage(faiss::Index& index) {
   return true;
 }
 
-// One graph search on the calling thread. FAISS's IndexHNSW::search opens an OpenMP parallel
-// region on every call, and each of its threads allocates and zeroes a visited table of one
-// byte per stored vector: for a single query at a million shapes that is two 1 MB memsets and a
-// thread wake-up per search, for nothing (perf on the 1M benchmark: 45 % of the process's
-// samples in libgomp). The same graph walk (HNSW::search, as IndexHNSW::search calls it) runs
-// here with a visited table kept per thread, which FAISS resets by advancing its mark.
-void search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t wanted, int ef_search,
-                  float* distances, faiss::Index::idx_t* rows) {
+// One graph search on the calling thread, over FAISS's HNSW graph and L∞ storage: a greedy
+// descent through the upper layers, then a best-first walk of the bottom layer that keeps the
+// `ef_search` nearest nodes seen and stops once the nearest unexpanded node is farther than all
+// of them (the HNSW paper's search; Malkov & Yashunin, IEEE TPAMI 42(4), 2020, algorithms 2
+// and 5, cited from memory). FAISS's own walk (HNSW::search) was replaced for two reasons. Its candidate list
+// finds its minimum by a linear scan of ef entries per step. And it computes each neighbour's
+// distance as it reaches it, where at a million shapes each neighbour's vector is a cache miss
+// (cold, 256 bytes): here a node's unvisited neighbours are gathered first and their vectors
+// prefetched, so the misses overlap. IndexHNSW::search is avoided altogether: it opens an
+// OpenMP region on every call, and each of its threads zeroes a visited table of one byte per
+// stored vector. The visited table here is kept per thread and reset by advancing its mark.
+// Fills up to `wanted` (≤ ef_search) rows and distances, nearest first; returns how many.
+std::size_t search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t wanted, int ef_search,
+                         float* distances, faiss::Index::idx_t* rows) {
+  const faiss::HNSW& hnsw = graph.hnsw;
+  if (graph.ntotal == 0 || hnsw.entry_point < 0) return 0;
   thread_local std::unique_ptr<faiss::VisitedTable> visited;
   const auto stored = static_cast<std::size_t>(graph.ntotal);
   if (!visited || visited->visited.size() < stored) visited = std::make_unique<faiss::VisitedTable>(static_cast<int>(stored));
@@ -112,13 +122,80 @@ void search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t
     faiss::VisitedTable& table;
     ~Advance() { table.advance(); }
   } advance{*visited};
-  std::unique_ptr<faiss::DistanceComputer> computer(graph.storage->get_distance_computer());
-  computer->set_query(query);
-  faiss::SearchParametersHNSW parameters;
-  parameters.efSearch = ef_search;
-  faiss::maxheap_heapify(wanted, distances, rows);
-  graph.hnsw.search(*computer, static_cast<int>(wanted), rows, distances, *visited, &parameters);
-  faiss::maxheap_reorder(wanted, distances, rows);
+  const auto& storage = dynamic_cast<const faiss::IndexFlat&>(*graph.storage);
+  const std::size_t dimension = static_cast<std::size_t>(storage.d);
+  const float* vectors = reinterpret_cast<const float*>(storage.codes.data());
+  auto vector_of = [&](faiss::HNSW::storage_idx_t node) { return vectors + static_cast<std::size_t>(node) * dimension; };
+  auto distance_to = [&](faiss::HNSW::storage_idx_t node) { return linf_distance(query, vector_of(node), dimension); };
+  auto prefetch = [&](faiss::HNSW::storage_idx_t node) {
+    const char* bytes = reinterpret_cast<const char*>(vector_of(node));
+    for (std::size_t offset = 0; offset < dimension * sizeof(float); offset += 64) __builtin_prefetch(bytes + offset);
+  };
+
+  faiss::HNSW::storage_idx_t nearest = hnsw.entry_point;
+  float nearest_distance = distance_to(nearest);
+  for (int level = hnsw.max_level; level > 0; --level) {
+    for (bool moved = true; moved;) {
+      moved = false;
+      std::size_t begin = 0, end = 0;
+      hnsw.neighbor_range(nearest, level, &begin, &end);
+      for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) prefetch(hnsw.neighbors[i]);
+      for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) {
+        const float d = distance_to(hnsw.neighbors[i]);
+        if (d < nearest_distance) {
+          nearest_distance = d;
+          nearest = hnsw.neighbors[i];
+          moved = true;
+        }
+      }
+    }
+  }
+
+  using Entry = std::pair<float, faiss::HNSW::storage_idx_t>;
+  const std::size_t ef = std::max<std::size_t>(static_cast<std::size_t>(ef_search), wanted);
+  thread_local std::vector<Entry> unexpanded, kept;  // heaps: nearest first / farthest first
+  thread_local std::vector<faiss::HNSW::storage_idx_t> fresh;
+  unexpanded.clear();
+  kept.clear();
+  const auto farther = std::greater<Entry>();  // a min-heap's comparison
+  unexpanded.push_back({nearest_distance, nearest});
+  kept.push_back({nearest_distance, nearest});
+  visited->set(nearest);
+  while (!unexpanded.empty()) {
+    std::pop_heap(unexpanded.begin(), unexpanded.end(), farther);
+    const Entry node = unexpanded.back();
+    unexpanded.pop_back();
+    if (kept.size() >= ef && node.first > kept.front().first) break;
+    std::size_t begin = 0, end = 0;
+    hnsw.neighbor_range(node.second, 0, &begin, &end);
+    fresh.clear();
+    for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) {
+      const faiss::HNSW::storage_idx_t neighbour = hnsw.neighbors[i];
+      if (visited->get(neighbour)) continue;
+      visited->set(neighbour);
+      prefetch(neighbour);
+      fresh.push_back(neighbour);
+    }
+    for (const faiss::HNSW::storage_idx_t neighbour : fresh) {
+      const float d = distance_to(neighbour);
+      if (kept.size() >= ef && d >= kept.front().first) continue;
+      unexpanded.push_back({d, neighbour});
+      std::push_heap(unexpanded.begin(), unexpanded.end(), farther);
+      kept.push_back({d, neighbour});
+      std::push_heap(kept.begin(), kept.end());
+      if (kept.size() > ef) {
+        std::pop_heap(kept.begin(), kept.end());
+        kept.pop_back();
+      }
+    }
+  }
+  std::sort_heap(kept.begin(), kept.end());  // nearest first
+  const std::size_t found = std::min(wanted, kept.size());
+  for (std::size_t i = 0; i < found; ++i) {
+    distances[i] = kept[i].first;
+    rows[i] = kept[i].second;
+  }
+  return found;
 }
 
 }  // namespace
@@ -234,7 +311,7 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
     const std::vector<float> query = compared_values(raw_query);
     const std::size_t wanted = std::min(count, label_of_row_.size());
     std::vector<float> distances(wanted);
-    std::vector<faiss::Index::idx_t> rows(wanted);
+    std::vector<faiss::Index::idx_t> rows(wanted, -1);  // -1: none found (FAISS's convention)
     try {
       if (wanted == 0) {
         // Nothing to search (FAISS would refuse k = 0).

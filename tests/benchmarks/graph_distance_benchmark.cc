@@ -1,7 +1,8 @@
 // Graph (HNSW) build and search under L∞: FAISS's IndexHNSWFlat with METRIC_Linf as Debian
-// builds it (its scalar loop for the "extra" metrics) against waymark's graph index (the same
-// FAISS graph over storage with a vectorised L∞ distance computer), on the same seeded
-// vectors, alternating in one run.
+// builds it (its scalar loop for the "extra" metrics) and its own search, against waymark's
+// graph index (the same FAISS graph over storage with a vectorised L∞ distance computer,
+// searched by index/approximate_index.cc's own walk), on the same seeded vectors, alternating
+// in one run.
 // Usage: graph_distance_benchmark [VECTORS=100000] [DIMENSION=64] [QUERIES=500] [ROUNDS=2]
 #include <faiss/IndexHNSW.h>
 
