@@ -47,8 +47,8 @@ WAYMARK_VECTOR_CLONES float linf_distance(const float* a, const float* b, std::s
 // The graph is FAISS's HNSW over a flat L∞ index of the raw landmark distances: the metric whose
 // order is the sketch lower bound's, so the candidates it returns are those the bound is least
 // likely to refuse. Against the weighted L2 graph it replaced, at 1M synthetic shapes and 400
-// candidates, recall@10 rose from 0.870 to 0.982 (Hausdorff) and from 0.711 to 0.782 (Fréchet)
-// (reports/performance-log.md, 2026-12-05). FAISS as Debian builds it computes L∞ with a scalar
+// candidates, recall@10 rose from 0.870 to about 0.98 (Hausdorff) and from 0.711 to about 0.78
+// (Fréchet) (reports/performance-log.md, 2026-12-05). FAISS as Debian builds it computes L∞ with a scalar
 // generic loop (its "extra" metrics); the storage below gives the graph this vectorised
 // distance computer instead, for builds and searches alike. The bytes stored and serialised are
 // FAISS's own flat L∞ index.
@@ -102,11 +102,12 @@ bool use_vectorised_storage(faiss::Index& index) {
 // descent through the upper layers, then a best-first walk of the bottom layer that keeps the
 // `ef_search` nearest nodes seen and stops once the nearest unexpanded node is farther than all
 // of them (the HNSW paper's search; Malkov & Yashunin, IEEE TPAMI 42(4), 2020, algorithms 2
-// and 5, cited from memory). FAISS's own walk (HNSW::search) was replaced for two reasons. Its candidate list
-// finds its minimum by a linear scan of ef entries per step. And it computes each neighbour's
-// distance as it reaches it, where at a million shapes each neighbour's vector is a cache miss
-// (cold, 256 bytes): here a node's unvisited neighbours are gathered first and their vectors
-// prefetched, so the misses overlap. IndexHNSW::search is avoided altogether: it opens an
+// and 5, cited from memory). FAISS's own walk (HNSW::search) was replaced for two reasons. Its
+// candidate list finds its minimum by a linear scan of ef entries per step. And it computes
+// each neighbour's distance as it reaches it, where at a million shapes each neighbour's vector
+// is a cache miss (cold, 256 bytes): here a node's unvisited neighbours are gathered first and
+// their vectors prefetched, so the misses overlap (index time at 1M: 1.40–2.32 → 0.82–1.00 ms,
+// reports/performance-log.md, 2026-12-05). IndexHNSW::search is avoided altogether: it opens an
 // OpenMP region on every call, and each of its threads zeroes a visited table of one byte per
 // stored vector. The visited table here is kept per thread and reset by advancing its mark.
 // Fills up to `wanted` (≤ ef_search) rows and distances, nearest first; returns how many.

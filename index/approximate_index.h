@@ -1,9 +1,9 @@
 // The approximate vector index of a graph or partitioned collection, for fast-mode candidates
 // on large collections: FAISS's HNSW graph (IndexHNSWFlat) over the raw landmark distances
 // under L∞, the order of the sketch lower bound itself, or inverted lists (IndexIVFFlat,
-// k-means partitions) over the weighted landmark distances under L2 (k-means needs L2). (Exact mode and range
-// queries always walk the exhaustive L∞ index, index/vector_index.h, which every collection
-// keeps: only that walk can certify an answer.)
+// k-means partitions) over the weighted landmark distances under L2 (k-means needs L2).
+// (Exact mode and range queries always walk the exhaustive L∞ index, index/vector_index.h,
+// which every collection keeps: only that walk can certify an answer.)
 //
 // Built in the background from a copy of the exhaustive index (build()), then swapped in
 // whole. Writes never wait for a graph insertion: vectors added since the copy sit in a small

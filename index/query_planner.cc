@@ -27,7 +27,9 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // bound Fréchet; partitions group by weighted L2). Recall@10 against certified answers and p50
 // (Hausdorff; Fréchet), synthetic 64-vertex shapes (`index_benchmark SHAPES 64 64 300 KIND 0
 // 300 0 0,BUDGETS 4`; 200k: 400 near-copies of each figure, 1M: 2,000):
-//   graph, L∞   1M, 2026-12-05, each budget's queries run apart (no caches warmed by another):
+//   graph, L∞   1M, 2026-12-05, each budget's queries run apart (no caches warmed by another),
+//               with FAISS's graph search (index/approximate_index.cc's own walk since took
+//               0.5–1.3 ms off each p50 at 40·k):
 //                 30·k 0.952, 0.680 (4.5, 4.9 ms); 40·k 0.984, 0.783 (4.6, 5.4 ms);
 //                 60·k 0.993, 0.919 (5.3, 6.8 ms); 100·k 0.996, 0.990 (7.0, 8.9 ms)
 //   graph, weighted L2 (before 2026-12-05), 1M: 40·k 0.870, 0.711 (4.2, 4.8 ms);
