@@ -110,11 +110,12 @@ bool use_vectorised_storage(faiss::Index& index) {
 // reports/performance-log.md, 2026-12-05). IndexHNSW::search is avoided altogether: it opens an
 // OpenMP region on every call, and each of its threads zeroes a visited table of one byte per
 // stored vector. The visited table here is kept per thread and reset by advancing its mark.
-// Fills up to `wanted` (≤ ef_search) rows and distances, nearest first; returns how many.
-std::size_t search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t wanted, int ef_search,
-                         float* distances, faiss::Index::idx_t* rows) {
+// Fills up to `wanted` (≤ ef_search) rows and distances, nearest first; rows it does not fill
+// keep their value.
+void search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t wanted, int ef_search,
+                  float* distances, faiss::Index::idx_t* rows) {
   const faiss::HNSW& hnsw = graph.hnsw;
-  if (graph.ntotal == 0 || hnsw.entry_point < 0) return 0;
+  if (graph.ntotal == 0 || hnsw.entry_point < 0) return;
   thread_local std::unique_ptr<faiss::VisitedTable> visited;
   const auto stored = static_cast<std::size_t>(graph.ntotal);
   if (!visited || visited->visited.size() < stored) visited = std::make_unique<faiss::VisitedTable>(static_cast<int>(stored));
@@ -191,12 +192,10 @@ std::size_t search_graph(const faiss::IndexHNSW& graph, const float* query, std:
     }
   }
   std::sort_heap(kept.begin(), kept.end());  // nearest first
-  const std::size_t found = std::min(wanted, kept.size());
-  for (std::size_t i = 0; i < found; ++i) {
+  for (std::size_t i = 0; i < std::min(wanted, kept.size()); ++i) {
     distances[i] = kept[i].first;
     rows[i] = kept[i].second;
   }
-  return found;
 }
 
 }  // namespace

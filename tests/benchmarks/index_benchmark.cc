@@ -13,8 +13,9 @@
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
 // and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
 // row each (0: the default, 40·k; 100·k for a partitioned index), to show what recall each buys.
-// Each row runs every query before the next row starts, so no row finds a query's data cached
-// by another.
+// Each row runs every query before the next row starts: a query run in several rows in turn
+// found the graph, vectors and copies it touches already in the CPU's caches for all but the
+// first, which made later rows look faster than a fresh query is.
 // A non-exhaustive run times its restarts in child processes: the same program with
 // `--open DIRECTORY COPY_CAPACITY`, which opens the collection, prints the seconds and exits.
 // With WAYMARK_BENCHMARK_KEEP set in the environment the collection is left in the temporary
@@ -259,9 +260,6 @@ int main(int argc, char** argv) {
     add_mode("full exact scan", true, true, 0);
     std::vector<Shape> query_shapes;
     for (std::size_t q = 0; q < queries; ++q) query_shapes.push_back(synthetic(shapes + q, templates));
-    // One mode over every query before the next mode starts: a query run in several modes in a
-    // row would find the graph, vectors and copies it touches already in the CPU's caches for
-    // all but the first, which made later rows look faster than a fresh query is.
     for (Mode& mode : modes) {
       mode.answers.resize(queries);
       for (std::size_t q = 0; q < queries; ++q) {
