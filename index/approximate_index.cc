@@ -18,7 +18,7 @@
 #include <utility>
 #include <vector>
 
-#include "sketch/vector_clones.h"
+#include "index/linf_distances.h"
 
 namespace waymark {
 namespace {
@@ -29,19 +29,11 @@ Status from_exception(const std::exception& error) {
   return Status(StatusCode::internal, std::string("approximate index: ") + error.what());
 }
 
-// The L∞ distance in 16 independent float lanes, so that the compiler vectorises it (a single
-// running maximum is a dependency chain it may not reorder).
-WAYMARK_VECTOR_CLONES float linf_distance(const float* a, const float* b, std::size_t dimension) {
-  constexpr std::size_t kLanes = 16;
-  float lanes[kLanes] = {};
-  std::size_t i = 0;
-  for (; i + kLanes <= dimension; i += kLanes) {
-    for (std::size_t j = 0; j < kLanes; ++j) lanes[j] = std::max(lanes[j], std::fabs(a[i + j] - b[i + j]));
-  }
-  float largest = 0;
-  for (; i < dimension; ++i) largest = std::max(largest, std::fabs(a[i] - b[i]));
-  for (float lane : lanes) largest = std::max(largest, lane);
-  return largest;
+// The L∞ distance between two vectors (the exhaustive index's kernel, index/linf_distances.h).
+float linf_distance(const float* a, const float* b, std::size_t dimension) {
+  float distance = 0;
+  linf_distances(b, 1, dimension, dimension, a, &distance);
+  return distance;
 }
 
 // The graph is FAISS's HNSW over a flat L∞ index of the raw landmark distances: the metric whose

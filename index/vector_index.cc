@@ -5,6 +5,7 @@
 #include <cstring>
 #include <mutex>
 
+#include "index/linf_distances.h"
 #include "sketch/vector_clones.h"
 
 namespace waymark {
@@ -22,9 +23,13 @@ inline Float8 load8(const float* p) {
   return value;
 }
 
-// L∞ distance over the first `dimension` coordinates from `query` to each of `count` rows
-// that lie `stride` floats apart. Stored values are finite, so the comparison-based maximum
-// equals the true one.
+bool nearer(const Neighbour& a, const Neighbour& b) {
+  return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
+}
+
+}  // namespace
+
+// Stored values are finite, so the comparison-based maximum equals the true one.
 WAYMARK_VECTOR_CLONES
 void linf_distances(const float* __restrict rows, std::size_t count, std::size_t stride, std::size_t dimension,
                     const float* __restrict query, float* __restrict out) {
@@ -44,12 +49,6 @@ void linf_distances(const float* __restrict rows, std::size_t count, std::size_t
     out[row] = largest;
   }
 }
-
-bool nearer(const Neighbour& a, const Neighbour& b) {
-  return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
-}
-
-}  // namespace
 
 std::size_t VectorIndex::size() const {
   std::shared_lock lock(mutex_);
