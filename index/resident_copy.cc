@@ -105,9 +105,8 @@ ResidentCopy& ResidentCopy::operator=(ResidentCopy&& other) noexcept {
 
 ResidentCopy::~ResidentCopy() { bytes_in_use.fetch_sub(bytes()); }
 
-ResidentCopy::Decoded ResidentCopy::decode() const {
+void ResidentCopy::decode(Decoded& decoded) const {
   const std::uint32_t* in = words_.get();
-  Decoded decoded;
   decoded.shape.kind = static_cast<ShapeKind>(*in++);
   const std::size_t parts = *in++;
   decoded.shape.parts.resize(parts);
@@ -115,6 +114,8 @@ ResidentCopy::Decoded ResidentCopy::decode() const {
   if (decoded.shape.kind == ShapeKind::polygon) {
     decoded.shape.polygon_of_ring.assign(in, in + parts);
     in += parts;
+  } else {
+    decoded.shape.polygon_of_ring.clear();
   }
   Point centre;
   std::memcpy(&centre.x, in, sizeof(double));
@@ -128,7 +129,6 @@ ResidentCopy::Decoded ResidentCopy::decode() const {
       in += 2;
     }
   }
-  return decoded;
 }
 
 }  // namespace waymark

@@ -41,7 +41,9 @@ class ResidentCopy {
     Shape shape;
     double displacement = 0;  // no vertex of `shape` is farther than this from the stored one
   };
-  Decoded decode() const;  // precondition: !empty(). O(vertices).
+  // Fills `into` (reusing its vectors' memory: a query decodes hundreds of copies). Precondition:
+  // !empty(). O(vertices).
+  void decode(Decoded& into) const;
 
  private:
   std::unique_ptr<std::uint32_t[]> words_;

@@ -19,7 +19,12 @@
 // A non-exhaustive run times its restarts in child processes: the same program with
 // `--open DIRECTORY COPY_CAPACITY`, which opens the collection, prints the seconds and exits.
 // With WAYMARK_BENCHMARK_KEEP set in the environment the collection is left in the temporary
-// folder (it says where), e.g. to time or profile `--open` on it again.
+// folder (it says where), e.g. to time or profile `--open` on it again. With
+// WAYMARK_BENCHMARK_REUSE set as well, a later run with the same SHAPES, VERTICES, LANDMARKS
+// and INDEX opens that collection instead of making it again (ingest, build and restarts are
+// then not timed), so that a change to queries alone is measured in a minute at 1M shapes.
+// The kept collection is not checked against the arguments beyond its size: after changing
+// anything the ingest or the index depends on, run once without REUSE.
 // WRITERS threads call upsert() at once, each with its own batches, as concurrent clients of a
 // server do (concurrent batches share a synced write: Collection::upsert).
 #include <algorithm>
@@ -104,106 +109,116 @@ int main(int argc, char** argv) {
     return 2;
   }
   const std::filesystem::path directory = std::filesystem::temp_directory_path() / "waymark-index-benchmark";
-  std::filesystem::remove_all(directory);
-
+  const bool reuse = std::getenv("WAYMARK_BENCHMARK_REUSE") != nullptr && std::filesystem::exists(directory);
   SeededRandom random(1);
   std::vector<Shape> templates;
   for (int t = 0; t < 500; ++t) templates.push_back(testing::random_walk(random, vertices));
-  CollectionSettings settings;
-  settings.landmarks = *grid_landmarks(unit_frame_domain(), landmarks);
-  settings.index_kind = *kind;
-  settings.approximate.minimum_size = std::numeric_limits<std::size_t>::max();  // built below, timed
-  auto collection = Collection::create(directory.string(), settings);
-  if (!collection) {
-    std::fprintf(stderr, "%s\n", collection.status().to_string().c_str());
-    return 1;
-  }
-
-  // Ingest time is the upsert() calls' alone: making up the records is the clients' work, done
-  // before the clock starts.
-  std::vector<std::vector<ShapeRecord>> batches;
-  for (std::size_t n = 0; n < shapes; ++n) {
-    if (n % 1000 == 0) batches.emplace_back().reserve(1000);
-    batches.back().push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
-  }
-  std::atomic<std::size_t> next_batch = 0;
-  std::atomic<bool> failed = false;
-  auto write_batches = [&] {
-    for (std::size_t b = next_batch++; b < batches.size() && !failed; b = next_batch++) {
-      if (Status s = (*collection)->upsert(batches[b]); !s.is_ok()) {
-        std::fprintf(stderr, "%s\n", s.to_string().c_str());
-        failed = true;
-      }
-    }
-  };
-  const auto ingest_start = Clock::now();
-  {
-    std::vector<std::jthread> clients;
-    for (std::size_t w = 1; w < writers; ++w) clients.emplace_back(write_batches);
-    write_batches();
-  }
-  const double ingest_seconds = milliseconds(Clock::now() - ingest_start) / 1000;
-  if (failed) return 1;
-  batches = {};
-
   ApproximateIndexSettings build_now;
   build_now.minimum_size = 1;
-  // Closes the collection, then opens it as a restarted server does; returns the open's
-  // seconds. Closing (freeing indexes and copies; a server's exit skips most of it) is timed
-  // apart: the longest close is printed with the restarts.
-  double longest_close_seconds = 0;
-  auto reopen = [&] {
-    const auto close_start = Clock::now();
-    collection->reset();
-    const auto start = Clock::now();
-    longest_close_seconds = std::max(longest_close_seconds, milliseconds(start - close_start) / 1000);
-    collection = Collection::open(directory.string(), build_now);
-    return milliseconds(Clock::now() - start) / 1000;
-  };
-  const double reopen_seconds = reopen();
-  const auto build_start = Clock::now();
-  if (Status s = (*collection)->build_approximate_index_now(); !s.is_ok()) {
-    std::fprintf(stderr, "%s\n", s.to_string().c_str());
-    return 1;
-  }
-  const double build_seconds = milliseconds(Clock::now() - build_start) / 1000;
-  // A restart as waymarkd does it: a fresh process opens the collection, and the approximate
-  // index comes from the snapshot the build wrote. Timed in a child process (this program run
-  // with --open): with one reading thread, reopening in this process took 3.1–3.7 s at 1M
-  // shapes where a fresh process took 7.6–8.5 s (2026-12-03), the heap handing back memory that
-  // the closed collection had freed. Three children: with float copies, without, and with again.
+  Result<std::unique_ptr<Collection>> collection = Status(StatusCode::not_found, "not made yet");
+  double ingest_seconds = 0, reopen_seconds = 0, build_seconds = 0, longest_close_seconds = 0;
   std::vector<std::string> restarts;
-  if (*kind != IndexKind::exhaustive) {
-    const auto close_start = Clock::now();
-    collection->reset();
-    longest_close_seconds = std::max(longest_close_seconds, milliseconds(Clock::now() - close_start) / 1000);
-    const std::size_t copy_capacity = resident_copy_capacity();
-    for (const std::size_t capacity : {copy_capacity, std::size_t{0}, copy_capacity}) {
-      const std::string command = "'" + std::filesystem::read_symlink("/proc/self/exe").string() + "' --open '" +
-                                  directory.string() + "' " + std::to_string(capacity);
-      FILE* child = popen(command.c_str(), "r");
-      char line[256] = {};
-      const bool read = child && std::fgets(line, sizeof line, child) != nullptr;
-      const int status = child ? pclose(child) : -1;
-      double seconds = 0, copies_seconds = 0;
-      char note[64] = {};
-      if (!read || status != 0 || std::sscanf(line, "%lf %lf %63s", &seconds, &copies_seconds, note) != 3 ||
-          std::string(note) != "loaded") {
-        std::fprintf(stderr, "the restarted process did not load the snapshot: %s\n", line);
-        return 1;
-      }
-      char figure[64];
-      if (capacity > 0) {
-        std::snprintf(figure, sizeof figure, "%.2f (copies done at %.2f)", seconds, copies_seconds);
-      } else {
-        std::snprintf(figure, sizeof figure, "%.2f", seconds);
-      }
-      restarts.push_back(figure);
-    }
+  if (reuse) {
     collection = Collection::open(directory.string(), build_now);
+    if (!collection || (*collection)->statistics().shape_count != shapes) {
+      std::fprintf(stderr, "the kept collection in %s cannot be reused: %s\n", directory.string().c_str(),
+                   collection ? "it holds another number of shapes" : collection.status().to_string().c_str());
+      return 1;
+    }
+  } else {
+    std::filesystem::remove_all(directory);
+    CollectionSettings settings;
+    settings.landmarks = *grid_landmarks(unit_frame_domain(), landmarks);
+    settings.index_kind = *kind;
+    settings.approximate.minimum_size = std::numeric_limits<std::size_t>::max();  // built below, timed
+    collection = Collection::create(directory.string(), settings);
     if (!collection) {
       std::fprintf(stderr, "%s\n", collection.status().to_string().c_str());
       return 1;
+    }
+
+    // Ingest time is the upsert() calls' alone: making up the records is the clients' work, done
+    // before the clock starts.
+    std::vector<std::vector<ShapeRecord>> batches;
+    for (std::size_t n = 0; n < shapes; ++n) {
+      if (n % 1000 == 0) batches.emplace_back().reserve(1000);
+      batches.back().push_back({"shape-" + std::to_string(n), synthetic(n, templates), "{}"});
+    }
+    std::atomic<std::size_t> next_batch = 0;
+    std::atomic<bool> failed = false;
+    auto write_batches = [&] {
+      for (std::size_t b = next_batch++; b < batches.size() && !failed; b = next_batch++) {
+        if (Status s = (*collection)->upsert(batches[b]); !s.is_ok()) {
+          std::fprintf(stderr, "%s\n", s.to_string().c_str());
+          failed = true;
+        }
+      }
+    };
+    const auto ingest_start = Clock::now();
+    {
+      std::vector<std::jthread> clients;
+      for (std::size_t w = 1; w < writers; ++w) clients.emplace_back(write_batches);
+      write_batches();
+    }
+    ingest_seconds = milliseconds(Clock::now() - ingest_start) / 1000;
+    if (failed) return 1;
+    batches = {};
+
+    // Closes the collection, then opens it as a restarted server does; returns the open's
+    // seconds. Closing (freeing indexes and copies; a server's exit skips most of it) is timed
+    // apart: the longest close is printed with the restarts.
+    auto reopen = [&] {
+      const auto close_start = Clock::now();
+      collection->reset();
+      const auto start = Clock::now();
+      longest_close_seconds = std::max(longest_close_seconds, milliseconds(start - close_start) / 1000);
+      collection = Collection::open(directory.string(), build_now);
+      return milliseconds(Clock::now() - start) / 1000;
+    };
+    reopen_seconds = reopen();
+    const auto build_start = Clock::now();
+    if (Status s = (*collection)->build_approximate_index_now(); !s.is_ok()) {
+      std::fprintf(stderr, "%s\n", s.to_string().c_str());
+      return 1;
+    }
+    build_seconds = milliseconds(Clock::now() - build_start) / 1000;
+    // A restart as waymarkd does it: a fresh process opens the collection, and the approximate
+    // index comes from the snapshot the build wrote. Timed in a child process (this program run
+    // with --open): with one reading thread, reopening in this process took 3.1–3.7 s at 1M
+    // shapes where a fresh process took 7.6–8.5 s (2026-12-03), the heap handing back memory that
+    // the closed collection had freed. Three children: with float copies, without, and with again.
+    if (*kind != IndexKind::exhaustive) {
+      const auto close_start = Clock::now();
+      collection->reset();
+      longest_close_seconds = std::max(longest_close_seconds, milliseconds(Clock::now() - close_start) / 1000);
+      const std::size_t copy_capacity = resident_copy_capacity();
+      for (const std::size_t capacity : {copy_capacity, std::size_t{0}, copy_capacity}) {
+        const std::string command = "'" + std::filesystem::read_symlink("/proc/self/exe").string() + "' --open '" +
+                                    directory.string() + "' " + std::to_string(capacity);
+        FILE* child = popen(command.c_str(), "r");
+        char line[256] = {};
+        const bool read = child && std::fgets(line, sizeof line, child) != nullptr;
+        const int status = child ? pclose(child) : -1;
+        double seconds = 0, copies_seconds = 0;
+        char note[64] = {};
+        if (!read || status != 0 || std::sscanf(line, "%lf %lf %63s", &seconds, &copies_seconds, note) != 3 ||
+            std::string(note) != "loaded") {
+          std::fprintf(stderr, "the restarted process did not load the snapshot: %s\n", line);
+          return 1;
+        }
+        char figure[64];
+        if (capacity > 0) {
+          std::snprintf(figure, sizeof figure, "%.2f (copies done at %.2f)", seconds, copies_seconds);
+        } else {
+          std::snprintf(figure, sizeof figure, "%.2f", seconds);
+        }
+        restarts.push_back(figure);
+      }
+      collection = Collection::open(directory.string(), build_now);
+      if (!collection) {
+        std::fprintf(stderr, "%s\n", collection.status().to_string().c_str());
+        return 1;
+      }
     }
   }
   (*collection)->wait_for_resident_copies();  // queries are timed with every copy in place
@@ -212,14 +227,18 @@ int main(int argc, char** argv) {
   const double raw_bytes = 16.0 * vertices + 4.0 * landmarks;  // vertices as float64 pairs + the vector
   std::printf("shapes %zu, vertices %zu, landmarks %zu, queries %zu (%zu with full scan), index %s, one thread\n",
               shapes, vertices, landmarks, queries, std::min(queries, scanned_queries), index_kind_name(*kind));
-  std::printf("durable ingest (batches of 1000, %zu writer%s): %.0f shapes/s\n", writers, writers == 1 ? "" : "s",
-              shapes / ingest_seconds);
-  std::printf("reopen (reads every record and sketch, rebuilds the exhaustive index): %.2f s\n", reopen_seconds);
-  if (*kind != IndexKind::exhaustive) {
-    std::printf("approximate index build after reopen: %.2f s\n", build_seconds);
-    std::printf("restart in a fresh process with the approximate index's snapshot (open, load, catch up): %s s; "
-                "again with a copy capacity of 0 / as before: %s / %s s; closing took up to %.2f s more\n",
-                restarts[0].c_str(), restarts[1].c_str(), restarts[2].c_str(), longest_close_seconds);
+  if (reuse) {
+    std::printf("the collection kept by an earlier run, reused: ingest, build and restarts not timed\n");
+  } else {
+    std::printf("durable ingest (batches of 1000, %zu writer%s): %.0f shapes/s\n", writers, writers == 1 ? "" : "s",
+                shapes / ingest_seconds);
+    std::printf("reopen (reads every record and sketch, rebuilds the exhaustive index): %.2f s\n", reopen_seconds);
+    if (*kind != IndexKind::exhaustive) {
+      std::printf("approximate index build after reopen: %.2f s\n", build_seconds);
+      std::printf("restart in a fresh process with the approximate index's snapshot (open, load, catch up): %s s; "
+                  "again with a copy capacity of 0 / as before: %s / %s s; closing took up to %.2f s more\n",
+                  restarts[0].c_str(), restarts[1].c_str(), restarts[2].c_str(), longest_close_seconds);
+    }
   }
   const double memory_bytes = static_cast<double>(statistics.index_bytes + statistics.resident_copy_bytes) / shapes;
   std::printf("per shape: %.0f bytes in memory (indexes and id maps %.0f, float copies %.0f), %.0f bytes on disk; raw "
