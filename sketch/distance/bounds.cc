@@ -58,8 +58,6 @@ Point point_at(const Path& path, const WalkSegments& segments, Place place) {
   return {start.x + place.t * delta.x, start.y + place.t * delta.y};
 }
 
-double squared_distance(Point a, Point b) { return (a.x - b.x) * (a.x - b.x) + (a.y - b.y) * (a.y - b.y); }
-
 }  // namespace
 
 double greedy_coupling_upper_bound(const Path& p, const Path& q) {

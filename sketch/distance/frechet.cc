@@ -40,8 +40,6 @@ struct Interval {
   return {std::max(0.0, (-qb - root) * inverse), std::min(1.0, (-qb + root) * inverse)};
 }
 
-double squared_distance(Point a, Point b) { return (a.x - b.x) * (a.x - b.x) + (a.y - b.y) * (a.y - b.y); }
-
 double scale_of(const Path& p, const Path& q) {
   double extent = 0;
   for (const Path* path : {&p, &q}) {

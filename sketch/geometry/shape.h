@@ -26,6 +26,9 @@ struct Point {
   friend bool operator==(const Point&, const Point&) = default;
 };
 
+// |a − b|², in double without a square root (comparisons keep their order). O(1).
+inline double squared_distance(Point a, Point b) { return (a.x - b.x) * (a.x - b.x) + (a.y - b.y) * (a.y - b.y); }
+
 using Path = std::vector<Point>;
 
 enum class ShapeKind { points, polyline, polygon };
