@@ -40,6 +40,8 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 //                 100·k 0.989, 0.948; 200k: 40·k 1.000, 0.999
 //   partitioned  200k: 40·k 1.000, 1.000 (2.1–2.4, 3.2–3.5 ms); 100·k the same (2.8–2.9, 4.0–4.1)
 //                1M:   40·k 0.856, 0.719 (3.7, 4.5 ms); 100·k 0.989, 0.946 (4.3, 5.7 ms; p99 6.5, 7.6)
+//                1M, 2026-12-05 (second session): 100·k 0.992, 0.951 (4.36, 5.00 ms; p99 7.9,
+//                      7.8); 150·k 1.000, 0.996 (4.80, 5.80 ms); 200·k 1.000, 1.000 (5.04, 6.17)
 // Recall comes first: the default must find ≥ 0.95 of the certified neighbours, and at 1M
 // only 100·k does so for Fréchet (the exhaustive index's first 40·k in L∞ order found 0.818,
 // so no index order over landmark distances does much better there). So the Fréchet metrics
