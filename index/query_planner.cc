@@ -365,28 +365,31 @@ bool copies_can_refuse(Metric metric) { return metric == Metric::hausdorff || me
 // measurable at it.
 constexpr double kCopyDecisionMargin = 1e-6;
 
+// How far a distance computed on the float copy (with bounding box `copy_box`) may lie from
+// the stored shape's: the copy's displacement plus the margin above.
+double copy_allowance(const PreparedQuery& query, const ResidentCopy::Decoded& copy, const Box& copy_box) {
+  return copy.displacement + kCopyDecisionMargin * std::max(query.magnitude, largest_magnitude(copy_box));
+}
+
 // Whether the shape's float copy (index/resident_copy.h) proves it farther than `threshold`
 // under `metric` (one that copies_can_refuse): the decision procedure at threshold + the
-// copy's displacement + the margin above.
+// copy's allowance.
 bool refused_by_copy(const PreparedQuery& query, const ResidentCopy::Decoded& copy, Metric metric, double threshold) {
-  auto widened = [&](const Box& copy_box) {
-    const double magnitude = std::max(query.magnitude, largest_magnitude(copy_box));
-    return threshold + copy.displacement + kCopyDecisionMargin * magnitude;
-  };
   if (metric == Metric::hausdorff) {
     const PreparedShape prepared(copy.shape);  // its box too: no second pass over the copy
-    return !hausdorff_at_most(query.prepared, prepared, widened(prepared.box));
+    return !hausdorff_at_most(query.prepared, prepared, threshold + copy_allowance(query, copy, prepared.box));
   }
   // The plain decision: a search started at the threshold would also record its band and
   // bracket the value, work that the copy's answer (refuse or read the record) never uses.
   Result<Path> curve = curve_of(copy.shape);
-  return curve && !frechet_at_most(*query.curve, *curve, widened(bounding_box(copy.shape)));
+  return curve &&
+         !frechet_at_most(*query.curve, *curve, threshold + copy_allowance(query, copy, bounding_box(copy.shape)));
 }
 
 // Upper bounds on the exact distance (Hausdorff or Fréchet) of each candidate, from float
 // copies alone: ∞ unless it and the query are single curves and it has a copy, else the
-// greedy coupling bound (sketch/distance/bounds.h) on the copy, plus the copy's displacement
-// (moving each vertex by at most δ moves the shape by at most δ) and the copy margin.
+// greedy coupling bound (sketch/distance/bounds.h) on the copy plus the copy's allowance
+// (moving each vertex by at most δ moves the shape by at most δ).
 // O(candidates · vertices), no store read.
 std::vector<double> coupling_bounds(const Collection::State& state, const PreparedQuery& query,
                                     std::span<const Neighbour> candidates) {
@@ -404,9 +407,7 @@ std::vector<double> coupling_bounds(const Collection::State& state, const Prepar
     Path& curve = copy.shape.parts.front();
     if (curve.empty()) continue;
     if (copy.shape.kind == ShapeKind::polygon) curve.push_back(curve.front());
-    double magnitude = query.magnitude;
-    for (const Point& v : curve) magnitude = std::max({magnitude, std::fabs(v.x), std::fabs(v.y)});
-    bounds[c] = greedy_coupling_upper_bound(*query.curve, curve) + copy.displacement + kCopyDecisionMargin * magnitude;
+    bounds[c] = greedy_coupling_upper_bound(*query.curve, curve) + copy_allowance(query, copy, bounding_box(copy.shape));
   }
   return bounds;
 }
