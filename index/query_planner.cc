@@ -11,6 +11,7 @@
 #include <optional>
 #include <queue>
 #include <span>
+#include <utility>
 #include <nlohmann/json.hpp>
 
 #include "index/collection_state.h"
@@ -549,18 +550,17 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     const bool coupled = options.metric == Metric::frechet && query.curve && options.metadata_filter.empty();
     double cap = kInfinity;
     if (coupled) {
-      const std::size_t prefix = std::min(by_bound->size(), kCoupledCandidatesPerHit * options.k);
-      const std::vector<double> bounds = coupling_bounds(state, query, std::span(*by_bound).first(prefix));
-      std::vector<std::size_t> order(prefix);
-      for (std::size_t c = 0; c < prefix; ++c) order[c] = c;
+      const std::span<Neighbour> prefix =
+          std::span(*by_bound).first(std::min(by_bound->size(), kCoupledCandidatesPerHit * options.k));
+      const std::vector<double> bounds = coupling_bounds(state, query, prefix);
+      std::vector<std::pair<double, Neighbour>> by_upper;
+      by_upper.reserve(prefix.size());
+      for (std::size_t c = 0; c < prefix.size(); ++c) by_upper.push_back({bounds[c], prefix[c]});
       // Stable: candidates without a bound keep their lower-bound order, after the others.
-      std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return bounds[a] < bounds[b]; });
-      if (prefix >= options.k) cap = bounds[order[options.k - 1]];
-      std::vector<Neighbour> reordered;
-      reordered.reserve(by_bound->size());
-      for (std::size_t c : order) reordered.push_back((*by_bound)[c]);
-      reordered.insert(reordered.end(), by_bound->begin() + static_cast<std::ptrdiff_t>(prefix), by_bound->end());
-      *by_bound = std::move(reordered);
+      std::stable_sort(by_upper.begin(), by_upper.end(),
+                       [](const auto& a, const auto& b) { return a.first < b.first; });
+      for (std::size_t c = 0; c < prefix.size(); ++c) prefix[c] = by_upper[c].second;
+      if (by_upper.size() >= options.k) cap = by_upper[options.k - 1].first;
     }
     // Scores the candidates in that order into answer.hits; the stats add up over both runs.
     auto score = [&](double threshold_cap) -> Status {
