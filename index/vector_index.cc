@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 #include <cstring>
+#include <limits>
 #include <mutex>
 
 #include "index/linf_distances.h"
@@ -134,26 +135,55 @@ Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::s
   }
   if (compared == 0) compared = dimension_;
   Scan scan;
-  std::vector<float> distances;
   {
     std::shared_lock lock(mutex_);
-    distances.resize(labels_.size());
-    linf_distances(vectors_.data(), labels_.size(), dimension_, compared, query.data(), distances.data());
-    scan.all_.resize(labels_.size());
-    for (std::size_t i = 0; i < labels_.size(); ++i) scan.all_[i] = {labels_[i], distances[i]};
+    scan.labels_ = labels_;
+    scan.distances_.resize(labels_.size());
+    linf_distances(vectors_.data(), labels_.size(), dimension_, compared, query.data(), scan.distances_.data());
   }
+  // Evenly spaced rows: the vectors' order is insertion order, unrelated to the query.
+  constexpr std::size_t kSampleSize = 4096;
+  const std::size_t stored = scan.distances_.size(), sampled = std::min(stored, kSampleSize);
+  scan.sample_.reserve(sampled);
+  for (std::size_t i = 0; i < sampled; ++i) scan.sample_.push_back(scan.distances_[i * stored / sampled]);
+  std::sort(scan.sample_.begin(), scan.sample_.end());
   return scan;
 }
 
+void VectorIndex::Scan::gather(std::size_t wanted) {
+  // The sample's values above the ceiling stand for the rows not gathered yet; the new
+  // ceiling is the one at their share `wanted` / rows left, with a margin, so that a tier
+  // usually holds enough. Too few only costs another tier; the order never depends on it.
+  const auto above = gathered_any_ ? std::upper_bound(sample_.begin(), sample_.end(), ceiling_) : sample_.begin();
+  const std::size_t left = labels_.size() - gathered_.size(), sample_left = static_cast<std::size_t>(sample_.end() - above);
+  const double share = 1.5 * static_cast<double>(wanted) / static_cast<double>(std::max<std::size_t>(1, left));
+  const std::size_t rank = static_cast<std::size_t>(share * static_cast<double>(sample_left));
+  const bool everything = rank >= sample_left;
+  const float ceiling = everything ? 0 : *(above + static_cast<std::ptrdiff_t>(rank));
+  for (std::size_t row = 0; row < distances_.size(); ++row) {
+    const float d = distances_[row];
+    if ((gathered_any_ && !(d > ceiling_)) || (!everything && d > ceiling)) continue;
+    gathered_.push_back({labels_[row], d});
+  }
+  if (everything) ceiling_ = std::numeric_limits<float>::infinity();
+  else ceiling_ = ceiling;
+  gathered_any_ = true;
+}
+
 std::span<const Neighbour> VectorIndex::Scan::next(std::size_t count) {
-  const auto begin = all_.begin() + static_cast<std::ptrdiff_t>(handed_out_);
-  const std::size_t taken = std::min(count, all_.size() - handed_out_);
+  while (gathered_.size() - handed_out_ < count && gathered_.size() < labels_.size()) {
+    // Tiers at least double what has been handed out, so an exhaustive walk takes O(log n) tiers.
+    gather(std::max({count - (gathered_.size() - handed_out_), gathered_.size(), std::size_t{2048}}));
+  }
+  const auto begin = gathered_.begin() + static_cast<std::ptrdiff_t>(handed_out_);
+  const std::size_t taken = std::min(count, gathered_.size() - handed_out_);
   const auto end = begin + static_cast<std::ptrdiff_t>(taken);
-  // Select the `taken` nearest of the rest, then order them (ties by label, so scans repeat).
-  if (end != all_.end()) std::nth_element(begin, end, all_.end(), nearer);
+  // Select the `taken` nearest of those gathered and not handed out (nearer than every row
+  // not gathered), then order them (ties by label, so scans repeat).
+  if (end != gathered_.end()) std::nth_element(begin, end, gathered_.end(), nearer);
   std::sort(begin, end, nearer);
   handed_out_ += taken;
-  return {all_.data() + handed_out_ - taken, taken};
+  return {gathered_.data() + handed_out_ - taken, taken};
 }
 
 }  // namespace waymark

@@ -61,17 +61,29 @@ class VectorIndex {
                                               std::size_t compared = 0) const;
 
   // The distances from one query to every vector stored when the scan began, handed out
-  // nearest first. Later adds and removes do not change a scan.
+  // nearest first (equal distances by label). Later adds and removes do not change a scan.
   class Scan {
    public:
-    // The next `count` nearest (fewer at the end), in order; O(remaining) per call.
+    // The next `count` nearest (fewer at the end), in order. Rows are gathered from the
+    // distances in tiers, each about twice as many rows as handed out before it, so a query
+    // that stops early pays one O(n) pass and selections among the few gathered, not a
+    // selection among all n per call. O(n) per tier plus O(g log g) for the g gathered.
     std::span<const Neighbour> next(std::size_t count);
-    bool exhausted() const { return handed_out_ == all_.size(); }
-    std::size_t total() const { return all_.size(); }
+    bool exhausted() const { return handed_out_ == labels_.size(); }
+    std::size_t total() const { return labels_.size(); }
 
    private:
     friend class VectorIndex;
-    std::vector<Neighbour> all_;
+    // Appends to gathered_ every row whose distance lies above ceiling_ and at most a new
+    // ceiling, chosen from sample_ so that about `wanted` rows qualify (all rows once the
+    // sample runs out); rows gathered earlier are all nearer than those gathered later.
+    void gather(std::size_t wanted);
+    std::vector<std::int64_t> labels_;  // as stored when the scan began, by row
+    std::vector<float> distances_;      // by row
+    std::vector<float> sample_;         // evenly spaced distances, ascending: to choose ceilings
+    std::vector<Neighbour> gathered_;   // [0, handed_out_) handed out, in order
+    float ceiling_ = 0;                 // every row above it is still to be gathered
+    bool gathered_any_ = false;         // ceiling_ means nothing until the first tier
     std::size_t handed_out_ = 0;
   };
   // Distances over the first `compared` coordinates only (≤ dimension(); 0 means all), so that

@@ -2,6 +2,12 @@
 // (index/vector_index.h), and distances_to measures the same way to the labels asked.
 #include <catch2/catch.hpp>
 
+#include <algorithm>
+#include <cmath>
+#include <random>
+#include <span>
+#include <vector>
+
 #include "index/vector_index.h"
 
 using namespace waymark;
@@ -43,4 +49,57 @@ TEST_CASE("DistancesToLabelsLeaveOutLabelsWithoutAVector") {
   REQUIRE(all.is_ok());
   CHECK((*all)[0].distance == 99.0f);
   CHECK(index.distances_to(asked, std::vector<float>{1, 1}).status().code() == StatusCode::internal);
+}
+
+// A scan hands out every stored row exactly once, nearest first and equal distances by label,
+// whatever the sizes asked for: against a full sort of the distances computed here. Rows are
+// gathered in tiers chosen from a sample of the distances, so the cases include many ties
+// (integer values from a small range), every distance equal, and a few rows far nearer than
+// the rest (which the sample may miss).
+TEST_CASE("ScansHandOutEveryRowInOrderWhateverTheRoundSizes") {
+  constexpr std::size_t kDimension = 3, kRows = 20000;
+  const std::vector<float> query{10, 20, 30};
+  auto check = [&](const std::vector<float>& vectors, std::vector<std::size_t> rounds) {
+    VectorIndex index(kDimension);
+    std::vector<std::int64_t> labels;
+    // Labels in an order unrelated to the rows' distances, so ties are broken by label.
+    for (std::size_t r = 0; r < kRows; ++r) labels.push_back(static_cast<std::int64_t>((r * 7919) % kRows) + 1);
+    REQUIRE(index.add(labels, vectors).is_ok());
+    std::vector<Neighbour> expected;
+    for (std::size_t r = 0; r < kRows; ++r) {
+      float d = 0;
+      for (std::size_t i = 0; i < kDimension; ++i) d = std::max(d, std::fabs(vectors[r * kDimension + i] - query[i]));
+      expected.push_back({labels[r], d});
+    }
+    std::sort(expected.begin(), expected.end(), [](const Neighbour& a, const Neighbour& b) {
+      return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
+    });
+    Result<VectorIndex::Scan> scan = index.scan(query);
+    REQUIRE(scan.is_ok());
+    std::vector<Neighbour> handed;
+    for (std::size_t round = 0; !scan->exhausted(); ++round) {
+      const std::size_t asked = rounds[round % rounds.size()];
+      const std::span<const Neighbour> got = scan->next(asked);
+      REQUIRE(got.size() == std::min(asked, kRows - handed.size()));
+      handed.insert(handed.end(), got.begin(), got.end());
+    }
+    REQUIRE(handed.size() == kRows);
+    std::size_t mismatches = 0;
+    for (std::size_t i = 0; i < kRows; ++i) {
+      mismatches += handed[i].label != expected[i].label || handed[i].distance != expected[i].distance;
+    }
+    CHECK(mismatches == 0);
+    CHECK(scan->next(5).empty());
+  };
+  std::mt19937 random(11);
+  std::vector<float> ties(kRows * kDimension);
+  for (float& value : ties) value = static_cast<float>(std::uniform_int_distribution<int>(0, 60)(random));
+  check(ties, {40, 160, 640, 2560, 10240});
+  check(ties, {1, 7, 3000});
+  std::vector<float> equal(kRows * kDimension, 5.0f);
+  check(equal, {40, 160});
+  std::vector<float> few_near(kRows * kDimension);
+  for (float& value : few_near) value = std::uniform_real_distribution<float>(1000, 2000)(random);
+  for (std::size_t r = 0; r < kRows; r += 2003) std::copy(query.begin(), query.end(), few_near.begin() + r * kDimension);
+  check(few_near, {3, 100000});
 }
