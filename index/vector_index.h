@@ -13,11 +13,19 @@
 // for each batch. FAISS serves the graph index (HNSW) kind, where it is not the bottleneck.
 //
 // Storage: one contiguous array of n × dimension floats; removal moves the last vector into
-// the hole (O(dimension)). Thread safety: scan(), vector_of(), size() may run concurrently;
-// add() and remove() take an exclusive lock.
+// the hole (O(dimension)). Beside it, each vector as one byte per value (value j as the level
+// nearest it on a scale from low_j in steps shared by every value), with the vector's largest
+// coding error: a scan reads these, a quarter of the bytes, for a lower bound on every
+// vector's distance, and computes exact distances only for the vectors whose bound comes up
+// (at 1M the pass over the floats was memory-bound). The scale is fitted to the stored values
+// with some room; a value outside it takes the nearest end level, and its vector's error
+// says so (its bound is weak, never wrong); once many are, the scale is fitted again.
+// Thread safety: scan(), vector_of(), size() may run concurrently; add() and remove() take an
+// exclusive lock.
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <shared_mutex>
 #include <span>
 #include <unordered_map>
@@ -61,28 +69,38 @@ class VectorIndex {
                                               std::size_t compared = 0) const;
 
   // The distances from one query to every vector stored when the scan began, handed out
-  // nearest first (equal distances by label). Later adds and removes do not change a scan.
+  // nearest first (equal distances by label). Later adds do not change a scan; a vector
+  // removed after it began may be left out (never handed out with another's distance).
+  // Every scan of an index must end before the index does.
   class Scan {
    public:
-    // The next `count` nearest (fewer at the end), in order. Rows are gathered from the
-    // distances in tiers, each about twice as many rows as handed out before it, so a query
-    // that stops early pays one O(n) pass and selections among the few gathered, not a
-    // selection among all n per call. O(n) per tier plus O(g log g) for the g gathered.
+    // The next `count` nearest (fewer at the end), in order. The scan bounds every vector's
+    // distance from below by its byte codes, then gathers rows in tiers of bound, each about
+    // twice as many rows as handed out before it, with their exact distances; a row is handed
+    // out once every row not gathered is bounded above its distance. So a query that stops
+    // early pays one O(n) pass over the codes and exact distances for a few rows. O(n) per
+    // tier plus O(g log g) for the g rows gathered.
     std::span<const Neighbour> next(std::size_t count);
-    bool exhausted() const { return handed_out_ == labels_.size(); }
-    std::size_t total() const { return labels_.size(); }
+    bool exhausted() const { return handed_out_ == total_; }
+    std::size_t total() const { return total_; }
 
    private:
     friend class VectorIndex;
-    // Appends to gathered_ every row whose distance lies above ceiling_ and at most a new
-    // ceiling, chosen from sample_ so that about `wanted` rows qualify (all rows once the
-    // sample runs out); rows gathered earlier are all nearer than those gathered later.
+    // Gathers every row whose bound lies above ceiling_ and at most a new ceiling, chosen
+    // from sample_ so that about `wanted` rows qualify (all rows once the sample runs out),
+    // with their exact distances (under the index's shared lock; a row removed since the scan
+    // began is dropped).
     void gather(std::size_t wanted);
+    const VectorIndex* index_ = nullptr;
+    std::vector<float> query_;
+    std::size_t compared_ = 0;
+    std::size_t total_ = 0;             // rows when the scan began, less those found removed
     std::vector<std::int64_t> labels_;  // as stored when the scan began, by row
-    std::vector<float> distances_;      // by row
-    std::vector<float> sample_;         // evenly spaced distances, ascending: to choose ceilings
+    std::vector<float> bounds_;         // by row: at most the row's distance
+    std::vector<float> sample_;         // evenly spaced bounds, ascending: to choose ceilings
     std::vector<Neighbour> gathered_;   // [0, handed_out_) handed out, in order
-    float ceiling_ = 0;                 // every row above it is still to be gathered
+    std::size_t rows_gathered_ = 0;     // rows whose bound is at most ceiling_ (gathered or found removed)
+    float ceiling_ = 0;                 // every row bounded above it is still to be gathered
     bool gathered_any_ = false;         // ceiling_ means nothing until the first tier
     std::size_t handed_out_ = 0;
   };
@@ -92,8 +110,27 @@ class VectorIndex {
   Result<Scan> scan(std::span<const float> query, std::size_t compared = 0) const;
 
  private:
+  // Fills out[row] with a lower bound on the L∞ distance (first `compared` values, as
+  // linf_distances computes it) of each row, from the codes. Caller holds the lock.
+  void bound_all(const float* query, std::size_t compared, float* out) const;
+  // The exact distance of the vector of `label` as stored at `row` when a scan began, or
+  // nullopt when it has been removed since. Caller holds the lock.
+  std::optional<float> distance_now(std::size_t row, std::int64_t label, const float* query, std::size_t compared) const;
+
   std::size_t dimension_;
   std::vector<float> vectors_;  // row i belongs to labels_[i]
+  // Codes the rows from `first_row` on at the current scale.
+  void encode_rows(std::size_t first_row);
+  // Fits the scale to every stored value, with room, and codes every row again. O(n · dimension).
+  void fit_code_scale();
+
+  // Row i's value j is about code_low_[j] + code_step_ · codes_[i · dimension_ + j], within
+  // code_error_[i] of vectors_[i · dimension_ + j].
+  std::vector<std::uint8_t> codes_;
+  std::vector<float> code_error_;
+  std::vector<float> code_low_;
+  float code_step_ = 0;
+  std::size_t rows_off_scale_ = 0;  // rows with a value outside the scale (error over a step)
   std::vector<std::int64_t> labels_;
   std::unordered_map<std::int64_t, std::size_t> row_of_label_;
   mutable std::shared_mutex mutex_;

@@ -4,6 +4,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <map>
 #include <random>
 #include <span>
 #include <vector>
@@ -92,6 +93,9 @@ TEST_CASE("ScansHandOutEveryRowInOrderWhateverTheRoundSizes") {
     CHECK(scan->next(5).empty());
   };
   std::mt19937 random(11);
+  std::vector<float> spread(kRows * kDimension);
+  for (float& value : spread) value = std::uniform_real_distribution<float>(-50, 80)(random);
+  check(spread, {40, 160, 640});
   std::vector<float> ties(kRows * kDimension);
   for (float& value : ties) value = static_cast<float>(std::uniform_int_distribution<int>(0, 60)(random));
   check(ties, {40, 160, 640, 2560, 10240});
@@ -102,4 +106,74 @@ TEST_CASE("ScansHandOutEveryRowInOrderWhateverTheRoundSizes") {
   for (float& value : few_near) value = std::uniform_real_distribution<float>(1000, 2000)(random);
   for (std::size_t r = 0; r < kRows; r += 2003) std::copy(query.begin(), query.end(), few_near.begin() + r * kDimension);
   check(few_near, {3, 100000});
+}
+
+// Scans stay exact while the byte codes' scale (fitted to the first vectors) is outgrown:
+// vectors added later in batches reach far outside it, some are removed (the last row moving
+// into each hole), and queries lie inside and outside it. Each scan is checked against a full
+// sort of the distances computed here from the vectors still stored.
+TEST_CASE("ScansStayExactWhenLaterVectorsLeaveTheCodedRange") {
+  constexpr std::size_t kDimension = 40;  // one block of 32 bytes and an overlapping last one
+  VectorIndex index(kDimension);
+  std::mt19937 random(5);
+  std::map<std::int64_t, std::vector<float>> stored;
+  std::int64_t next_label = 1;
+  auto add_batch = [&](std::size_t count, float low, float high) {
+    std::vector<std::int64_t> labels;
+    std::vector<float> vectors;
+    for (std::size_t r = 0; r < count; ++r) {
+      std::vector<float> vector(kDimension);
+      for (float& value : vector) value = std::uniform_real_distribution<float>(low, high)(random);
+      labels.push_back(next_label);
+      stored[next_label++] = vector;
+      vectors.insert(vectors.end(), vector.begin(), vector.end());
+    }
+    REQUIRE(index.add(labels, vectors).is_ok());
+  };
+  auto check_scans = [&](std::size_t compared) {
+    for (const float centre : {0.5f, 3.0f, -40.0f, 900.0f}) {
+      std::vector<float> query(kDimension);
+      for (float& value : query) value = centre + std::uniform_real_distribution<float>(-0.5f, 0.5f)(random);
+      std::vector<Neighbour> expected;
+      for (const auto& [label, vector] : stored) {
+        float d = 0;
+        for (std::size_t j = 0; j < compared; ++j) d = std::max(d, std::fabs(vector[j] - query[j]));
+        expected.push_back({label, d});
+      }
+      std::sort(expected.begin(), expected.end(), [](const Neighbour& a, const Neighbour& b) {
+        return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
+      });
+      Result<VectorIndex::Scan> scan = index.scan(query, compared);
+      REQUIRE(scan.is_ok());
+      std::vector<Neighbour> handed;
+      while (!scan->exhausted()) {
+        const std::span<const Neighbour> got = scan->next(97);
+        handed.insert(handed.end(), got.begin(), got.end());
+      }
+      REQUIRE(handed.size() == expected.size());
+      std::size_t mismatches = 0;
+      for (std::size_t i = 0; i < handed.size(); ++i) {
+        mismatches += handed[i].label != expected[i].label || handed[i].distance != expected[i].distance;
+      }
+      CHECK(mismatches == 0);
+    }
+  };
+  add_batch(12000, 0, 1);  // the scale is fitted to these: about [−0.1, 1.1]
+  check_scans(kDimension);
+  add_batch(50, 0, 5);    // off the scale, too few to fit it again
+  add_batch(40, -50, 0);
+  check_scans(kDimension);
+  check_scans(33);
+  check_scans(1);
+  std::vector<std::int64_t> removed;
+  for (std::int64_t label = 1; label < next_label; label += 3) {
+    removed.push_back(label);
+    stored.erase(label);
+  }
+  REQUIRE(index.remove(removed).is_ok());
+  check_scans(kDimension);
+  add_batch(500, -100, 1000);  // enough off the scale to fit it again
+  check_scans(kDimension);
+  check_scans(7);  // fewer than one block of bytes
+  check_scans(1);  // one value: a bound off by its rounding shows at once
 }
