@@ -14,6 +14,7 @@
 #include <cstring>
 #include <functional>
 #include <mutex>
+#include <unordered_map>
 #include <unordered_set>
 #include <utility>
 #include <vector>
@@ -221,6 +222,17 @@ std::vector<float> ApproximateIndex::compared_values(std::span<const float> raw)
   return out;
 }
 
+std::vector<float> ApproximateIndex::uncompared_values(std::span<const float> raw) const {
+  const std::size_t compared = root_weights_.size(), dimension = fresh_.dimension(), count = raw.size() / dimension;
+  std::vector<float> out;
+  out.reserve(count * (dimension - compared));
+  for (std::size_t row = 0; row < count; ++row) {
+    out.insert(out.end(), raw.begin() + static_cast<std::ptrdiff_t>(row * dimension + compared),
+               raw.begin() + static_cast<std::ptrdiff_t>((row + 1) * dimension));
+  }
+  return out;
+}
+
 Status ApproximateIndex::added(std::span<const std::int64_t> labels, std::span<const float> raw_vectors) {
   return fresh_.add(labels, raw_vectors);
 }
@@ -286,6 +298,7 @@ Status ApproximateIndex::build(const VectorIndex::Contents& copy) {
     std::unique_lock lock(mutex_);
     built_ = std::move(index);
     label_of_row_ = copy.labels;
+    uncompared_of_row_ = kind_ == IndexKind::graph ? uncompared_values(copy.vectors) : std::vector<float>();
     partitions_ = partitions;
     tombstones_ = 0;
   }
@@ -295,7 +308,10 @@ Status ApproximateIndex::build(const VectorIndex::Contents& copy) {
   return Status::ok();
 }
 
-Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const float> raw_query, std::size_t count) const {
+Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const float> raw_query, std::size_t count,
+                                                            std::size_t bound_values) const {
+  const std::size_t compared = root_weights_.size();
+  const std::size_t graph_bound_values = std::clamp(bound_values, compared, fresh_.dimension());
   std::vector<Neighbour> out;
   {
     std::shared_lock lock(mutex_);
@@ -321,12 +337,20 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
     } catch (const std::exception& error) {
       return from_exception(error);
     }
+    // The graph's distance is L∞ over the compared values; the kept values extend it.
+    const std::size_t kept = fresh_.dimension() - compared, extended = kind_ == IndexKind::graph ? graph_bound_values - compared : 0;
     for (std::size_t i = 0; i < wanted; ++i) {
-      if (rows[i] >= 0) out.push_back({label_of_row_[static_cast<std::size_t>(rows[i])], distances[i]});
+      if (rows[i] < 0) continue;
+      const std::size_t row = static_cast<std::size_t>(rows[i]);
+      float distance = distances[i];
+      for (std::size_t j = 0; j < extended; ++j) {
+        distance = std::max(distance, std::fabs(uncompared_of_row_[row * kept + j] - raw_query[compared + j]));
+      }
+      out.push_back({label_of_row_[row], distance});
     }
   }
   // Fresh vectors, nearest by L∞; a label can be in both only while a build is swapping in.
-  Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query, root_weights_.size());
+  Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query, kind_ == IndexKind::graph ? graph_bound_values : compared);
   if (!fresh) return fresh.status();
   const std::span<const Neighbour> fresh_nearest = fresh->next(count);
   if (fresh_nearest.empty()) return out;  // as between builds mostly: no set of labels to make
@@ -516,24 +540,37 @@ Status ApproximateIndex::restore(Snapshot snapshot, const VectorIndex::Contents&
   // Catch up with the store: what it holds beyond the snapshot is fresh; what the snapshot
   // holds beyond the store is a tombstone.
   const std::unordered_set<std::int64_t> in_snapshot(snapshot.labels.begin(), snapshot.labels.end());
-  std::unordered_set<std::int64_t> stored;
+  std::unordered_map<std::int64_t, std::size_t> stored_row;
+  stored_row.reserve(all.labels.size());
   std::vector<std::int64_t> fresh_labels;
   std::vector<float> fresh_vectors;
-  const std::size_t dimension = fresh_.dimension();
+  const std::size_t dimension = fresh_.dimension(), compared = root_weights_.size(), kept = dimension - compared;
   for (std::size_t i = 0; i < all.labels.size(); ++i) {
-    stored.insert(all.labels[i]);
+    stored_row.emplace(all.labels[i], i);
     if (in_snapshot.contains(all.labels[i])) continue;
     fresh_labels.push_back(all.labels[i]);
     fresh_vectors.insert(fresh_vectors.end(), all.vectors.begin() + static_cast<std::ptrdiff_t>(i * dimension),
                          all.vectors.begin() + static_cast<std::ptrdiff_t>((i + 1) * dimension));
   }
   std::size_t tombstones = 0;
-  for (std::int64_t label : snapshot.labels) tombstones += !stored.contains(label);
+  // A graph keeps its rows' uncompared values (the snapshot holds only the compared ones);
+  // a tombstone's are never read, as no shape is found under it: zeros.
+  std::vector<float> uncompared(kind_ == IndexKind::graph ? snapshot.labels.size() * kept : 0);
+  for (std::size_t row = 0; row < snapshot.labels.size(); ++row) {
+    auto found = stored_row.find(snapshot.labels[row]);
+    if (found == stored_row.end()) {
+      ++tombstones;
+    } else if (kind_ == IndexKind::graph) {
+      std::copy_n(all.vectors.begin() + static_cast<std::ptrdiff_t>(found->second * dimension + compared), kept,
+                  uncompared.begin() + static_cast<std::ptrdiff_t>(row * kept));
+    }
+  }
   std::unique_lock lock(mutex_);
   (void)fresh_.remove(fresh_.copy().labels);
   if (Status s = fresh_.add(fresh_labels, fresh_vectors); !s.is_ok()) return s;
   built_ = std::move(snapshot.index);
   label_of_row_ = std::move(snapshot.labels);
+  uncompared_of_row_ = std::move(uncompared);
   partitions_ = snapshot.partitions;
   tombstones_ = tombstones;
   return Status::ok();
@@ -559,7 +596,9 @@ std::size_t ApproximateIndex::memory_bytes() const {
   const std::size_t n = label_of_row_.size(), dimension = root_weights_.size();
   std::size_t bytes = fresh_.memory_bytes() + n * sizeof(std::int64_t) + n * dimension * sizeof(float);
   // HNSW: about 2·M neighbour ids per vector on level 0 and a few more above (FAISS layout).
-  if (kind_ == IndexKind::graph) bytes += n * (2 * settings_.graph_neighbours + 4) * sizeof(std::int32_t);
+  if (kind_ == IndexKind::graph) {
+    bytes += n * (2 * settings_.graph_neighbours + 4) * sizeof(std::int32_t) + uncompared_of_row_.size() * sizeof(float);
+  }
   if (kind_ == IndexKind::partitioned) bytes += n * sizeof(std::int64_t) + partitions_ * dimension * sizeof(float);
   return bytes;
 }

@@ -85,8 +85,13 @@ class ApproximateIndex {
   Status build(const VectorIndex::Contents& copy);
 
   // Up to `count` candidates from the built index (approximate L∞ or L2 order) followed by up to
-  // `count` from the fresh index (L∞ order). failed_precondition when nothing is built.
-  Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count) const;
+  // `count` from the fresh index (L∞ order). A graph's candidates, and the fresh ones, come with
+  // the exact L∞ distance over the first max(bound_values, compared) raw values, as the
+  // exhaustive index computes it (the graph keeps the values it does not compare, by row);
+  // partitions' built candidates come with their weighted L2 distance, fresh ones with L∞ over
+  // the compared values. failed_precondition when nothing is built.
+  Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count,
+                                            std::size_t bound_values = 0) const;
 
   // Streams the built index as a snapshot file (index/STORE_FORMAT.md, "Approximate index
   // snapshot"), tagged with `generation`, to `sink` in pieces: no copy of the whole file is
@@ -127,6 +132,8 @@ class ApproximateIndex {
   // The compared values of each raw vector in `raw` as the built index holds them:
   // root_weights_.size() per vector, weighted for a partitioned index.
   std::vector<float> compared_values(std::span<const float> raw) const;
+  // The values of each raw vector after the compared ones, in order.
+  std::vector<float> uncompared_values(std::span<const float> raw) const;
 
   IndexKind kind_;
   std::vector<double> root_weights_;
@@ -134,6 +141,9 @@ class ApproximateIndex {
   mutable std::shared_mutex mutex_;
   std::unique_ptr<faiss::Index> built_;        // guarded by mutex_
   std::vector<std::int64_t> label_of_row_;     // FAISS's sequential ids → labels
+  // A graph's raw values after the compared ones, row by row (the curve ends, which bound the
+  // Fréchet metrics), so that candidates need no lookup in the exhaustive index for them.
+  std::vector<float> uncompared_of_row_;
   std::size_t partitions_ = 0;
   VectorIndex fresh_;                          // internally locked
   std::atomic<std::size_t> tombstones_{0};

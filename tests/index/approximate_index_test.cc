@@ -15,6 +15,7 @@
 #include <chrono>
 #include <cstring>
 #include <fstream>
+#include <random>
 #include <sstream>
 #include <thread>
 
@@ -360,6 +361,61 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
   CHECK(refused.status().code() == StatusCode::failed_precondition);
   CHECK(refused.status().message() == "snapshot compares 3 values per vector, this collection 4 (written by an older build)");
   CHECK_FALSE(longer.ready());
+}
+
+// A graph compares the leading values only (the landmark distances), yet hands its candidates
+// out with L∞ over as many values as asked, from the values it keeps by row (a curve's ends,
+// for the Fréchet metrics): after a build, and after a snapshot is restored and caught up
+// (the snapshot holds the compared values only; a shape stored since is fresh, one deleted
+// since a tombstone). Each distance is checked against L∞ over those values computed here.
+TEST_CASE("GraphCandidatesCarryTheBoundOverTheValuesAsked") {
+  constexpr std::size_t kCompared = 3, kDimension = 5, kCount = 200;
+  std::mt19937 random(3);
+  std::vector<std::int64_t> labels;
+  std::vector<float> vectors;
+  for (std::size_t r = 0; r < kCount; ++r) {
+    labels.push_back(static_cast<std::int64_t>(r + 1));
+    for (std::size_t j = 0; j < kDimension; ++j) vectors.push_back(std::uniform_real_distribution<float>(0, 10)(random));
+  }
+  ApproximateIndexSettings settings;
+  settings.minimum_size = 1;
+  const std::vector<double> weights(kCompared, 1.0);
+  VectorIndex all(kDimension);
+  REQUIRE(all.add(labels, vectors).is_ok());
+  ApproximateIndex built(IndexKind::graph, weights, kDimension, settings);
+  REQUIRE(built.build(all.copy()).is_ok());
+  std::string bytes;
+  REQUIRE(built.write_snapshot(7, [&](std::string_view piece) {
+    bytes.append(piece);
+    return Status::ok();
+  }).is_ok());
+  // Since the snapshot: one shape deleted, one stored.
+  REQUIRE(all.remove(std::vector<std::int64_t>{5}).is_ok());
+  const std::vector<float> added{1, 1, 1, 9, 9};
+  REQUIRE(all.add(std::vector<std::int64_t>{1000}, added).is_ok());
+  ApproximateIndex restored(IndexKind::graph, weights, kDimension, settings);
+  std::istringstream in(bytes);
+  Result<ApproximateIndex::Snapshot> read = restored.read_snapshot(in, 7);
+  REQUIRE(read.is_ok());
+  REQUIRE(restored.restore(std::move(*read), all.copy()).is_ok());
+
+  const std::vector<float> query{2, 3, 4, 5, 6};
+  for (const ApproximateIndex* graph : {&built, &restored}) {
+    for (const std::size_t asked : {std::size_t{0}, kCompared, std::size_t{4}, kDimension}) {
+      Result<std::vector<Neighbour>> candidates = graph->candidates(query, kCount + 1, asked);
+      REQUIRE(candidates.is_ok());
+      CHECK(candidates->size() >= kCount);
+      for (const Neighbour& n : *candidates) {
+        if (n.label == 5) continue;  // a tombstone in the restored graph: never read
+        const float* vector = n.label == 1000 ? added.data() : vectors.data() + (n.label - 1) * kDimension;
+        float expected = 0;
+        for (std::size_t j = 0; j < std::max(asked, kCompared); ++j) {
+          expected = std::max(expected, std::fabs(vector[j] - query[j]));
+        }
+        CHECK(n.distance == expected);
+      }
+    }
+  }
 }
 
 // Rings traced from random start vertices: 300 near-copies of each of 10 figures, so that the
