@@ -161,14 +161,17 @@ Status VectorIndex::remove(std::span<const std::int64_t> labels) {
 void VectorIndex::encode_rows(std::size_t first_row) {
   codes_.resize(labels_.size() * dimension_);
   code_error_.resize(labels_.size());
+  const double step = code_step_, inverse = code_step_ > 0 ? 1 / step : 0;
   for (std::size_t row = first_row; row < labels_.size(); ++row) {
-    double error = 0;  // in double, so exact for these floats; rounded up to a float below
+    // In double: a float less a float, and a float step times a level under 256, are exact
+    // there, so `error` is the coding error itself (rounded up to a float below).
+    double error = 0;
     for (std::size_t j = 0; j < dimension_; ++j) {
-      const double value = vectors_[row * dimension_ + j], low = code_low_[j];
-      const long level = code_step_ > 0 ? std::lround((value - low) / code_step_) : 0;
-      const std::uint8_t code = static_cast<std::uint8_t>(std::clamp(level, 0L, 255L));
+      const double offset = static_cast<double>(vectors_[row * dimension_ + j]) - code_low_[j];
+      const double level = std::clamp(offset * inverse, 0.0, 255.0);
+      const auto code = static_cast<std::uint8_t>(level + 0.5);  // the nearest level
       codes_[row * dimension_ + j] = code;
-      error = std::max(error, std::fabs(value - (low + static_cast<double>(code_step_) * code)));
+      error = std::max(error, std::fabs(offset - step * code));
     }
     code_error_[row] = std::nextafter(static_cast<float>(error), std::numeric_limits<float>::infinity());
     rows_off_scale_ += code_error_[row] > code_step_;
