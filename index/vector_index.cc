@@ -16,7 +16,6 @@ namespace {
 // to its own instructions (two SSE registers, one AVX2 register, or half an AVX-512 one).
 typedef float Float8 __attribute__((vector_size(32)));
 typedef std::int32_t Int8 __attribute__((vector_size(32)));
-typedef std::uint8_t Byte8 __attribute__((vector_size(8)));
 constexpr std::size_t kLanes = 8;
 
 inline Float8 load8(const float* p) {
@@ -239,30 +238,8 @@ Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::s
   {
     std::shared_lock lock(mutex_);
     scan.labels_ = labels_;
-    // The query at the same scale: its levels and how far they lie from its values.
-    std::vector<std::uint8_t> query_levels(compared);
-    double query_error = 0;
-    float magnitude = 0;  // of the values involved: the query's, the scale's ends
-    for (std::size_t j = 0; j < compared; ++j) {
-      const double value = query[j], low = code_low_.empty() ? 0 : code_low_[j];
-      const long level = code_step_ > 0 ? std::lround((value - low) / code_step_) : 0;
-      query_levels[j] = static_cast<std::uint8_t>(std::clamp(level, 0L, 255L));
-      query_error = std::max(query_error, std::fabs(value - (low + static_cast<double>(code_step_) * query_levels[j])));
-      magnitude = std::max({magnitude, std::fabs(query[j]), std::fabs(static_cast<float>(low)) + 256 * code_step_});
-    }
-    std::vector<std::uint8_t> levels(labels_.size());
-    largest_level_differences(codes_.data(), labels_.size(), dimension_, compared, query_levels.data(), levels.data());
-    // For each value, |q − x| ≥ step · |level(q) − level(x)| − (q's error) − (x's error), so
-    // the largest over values bounds the L∞ distance; less 1e-6 of the magnitudes for float
-    // rounding, of this sum and of the distance itself (a few units in the last place, each
-    // under 1.2e-7 of them).
-    const float shared_error = std::nextafter(static_cast<float>(query_error), std::numeric_limits<float>::infinity()) +
-                               1e-6f * magnitude;
     scan.bounds_.resize(labels_.size());
-    for (std::size_t row = 0; row < labels_.size(); ++row) {
-      const float bound = code_step_ * levels[row] - code_error_[row] - shared_error;
-      scan.bounds_[row] = bound > 0 ? bound : 0;
-    }
+    bound_all(query, compared, scan.bounds_.data());
   }
   scan.total_ = scan.labels_.size();
   // Evenly spaced rows: the vectors' order is insertion order, unrelated to the query.
@@ -272,6 +249,32 @@ Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::s
   for (std::size_t i = 0; i < sampled; ++i) scan.sample_.push_back(scan.bounds_[i * stored / sampled]);
   std::sort(scan.sample_.begin(), scan.sample_.end());
   return scan;
+}
+
+void VectorIndex::bound_all(std::span<const float> query, std::size_t compared, float* out) const {
+  // The query at the same scale: its levels and how far they lie from its values.
+  std::vector<std::uint8_t> query_levels(compared);
+  double query_error = 0;
+  float magnitude = 0;  // of the values involved: the query's, the scale's ends
+  for (std::size_t j = 0; j < compared; ++j) {
+    const double value = query[j], low = code_low_.empty() ? 0 : code_low_[j];
+    const long level = code_step_ > 0 ? std::lround((value - low) / code_step_) : 0;
+    query_levels[j] = static_cast<std::uint8_t>(std::clamp(level, 0L, 255L));
+    query_error = std::max(query_error, std::fabs(value - (low + static_cast<double>(code_step_) * query_levels[j])));
+    magnitude = std::max({magnitude, std::fabs(query[j]), std::fabs(static_cast<float>(low)) + 256 * code_step_});
+  }
+  std::vector<std::uint8_t> levels(labels_.size());
+  largest_level_differences(codes_.data(), labels_.size(), dimension_, compared, query_levels.data(), levels.data());
+  // For each value, |q − x| ≥ step · |level(q) − level(x)| − (q's error) − (x's error), so
+  // the largest over values bounds the L∞ distance; less 1e-6 of the magnitudes for float
+  // rounding, of this sum and of the distance itself (a few units in the last place, each
+  // under 1.2e-7 of them).
+  const float shared_error = std::nextafter(static_cast<float>(query_error), std::numeric_limits<float>::infinity()) +
+                             1e-6f * magnitude;
+  for (std::size_t row = 0; row < labels_.size(); ++row) {
+    const float bound = code_step_ * levels[row] - code_error_[row] - shared_error;
+    out[row] = bound > 0 ? bound : 0;
+  }
 }
 
 std::optional<float> VectorIndex::distance_now(std::size_t row, std::int64_t label, const float* query,

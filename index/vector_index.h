@@ -110,20 +110,19 @@ class VectorIndex {
   Result<Scan> scan(std::span<const float> query, std::size_t compared = 0) const;
 
  private:
-  // Fills out[row] with a lower bound on the L∞ distance (first `compared` values, as
-  // linf_distances computes it) of each row, from the codes. Caller holds the lock.
-  void bound_all(const float* query, std::size_t compared, float* out) const;
+  // Fills out[row] with a lower bound on each row's L∞ distance to `query` (first `compared`
+  // values, as linf_distances computes it), from the codes. Caller holds the lock. O(n · compared).
+  void bound_all(std::span<const float> query, std::size_t compared, float* out) const;
   // The exact distance of the vector of `label` as stored at `row` when a scan began, or
   // nullopt when it has been removed since. Caller holds the lock.
   std::optional<float> distance_now(std::size_t row, std::int64_t label, const float* query, std::size_t compared) const;
-
-  std::size_t dimension_;
-  std::vector<float> vectors_;  // row i belongs to labels_[i]
   // Codes the rows from `first_row` on at the current scale.
   void encode_rows(std::size_t first_row);
   // Fits the scale to every stored value, with room, and codes every row again. O(n · dimension).
   void fit_code_scale();
 
+  std::size_t dimension_;
+  std::vector<float> vectors_;  // row i belongs to labels_[i]
   // Row i's value j is about code_low_[j] + code_step_ · codes_[i · dimension_ + j], within
   // code_error_[i] of vectors_[i · dimension_ + j].
   std::vector<std::uint8_t> codes_;
