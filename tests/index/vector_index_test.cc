@@ -6,6 +6,7 @@
 #include <cmath>
 #include <map>
 #include <random>
+#include <set>
 #include <span>
 #include <vector>
 
@@ -176,4 +177,56 @@ TEST_CASE("ScansStayExactWhenLaterVectorsLeaveTheCodedRange") {
   check_scans(kDimension);
   check_scans(7);  // fewer than one block of bytes
   check_scans(1);  // one value: a bound off by its rounding shows at once
+}
+
+// A scan begun before removals (each moving the last row into the hole) still hands out, in
+// order and once each, every vector it began with that is still stored, each with its own
+// distance; a removed one only if a tier gathered it before the removal (its later tiers read
+// the rows again, so rows removed by then are found gone, never read as the row moved into
+// their place). A vector added after the scan began is not handed out.
+TEST_CASE("ScansBegunBeforeRemovalsHandOutTheSurvivorsWithTheirOwnDistances") {
+  constexpr std::size_t kDimension = 4, kRows = 9000;
+  std::mt19937 random(9);
+  VectorIndex index(kDimension);
+  std::vector<std::int64_t> labels;
+  std::vector<float> vectors;
+  for (std::size_t r = 0; r < kRows; ++r) {
+    labels.push_back(static_cast<std::int64_t>(r + 1));
+    for (std::size_t j = 0; j < kDimension; ++j) vectors.push_back(std::uniform_real_distribution<float>(0, 100)(random));
+  }
+  REQUIRE(index.add(labels, vectors).is_ok());
+  const std::vector<float> query{50, 50, 50, 50};
+  Result<VectorIndex::Scan> scan = index.scan(query);
+  REQUIRE(scan.is_ok());
+  const std::span<const Neighbour> first = scan->next(10);  // the first tier, before the removals
+  std::vector<Neighbour> handed(first.begin(), first.end());
+  std::vector<std::int64_t> removed;
+  for (std::int64_t label = 3; label <= static_cast<std::int64_t>(kRows); label += 7) removed.push_back(label);
+  REQUIRE(index.remove(removed).is_ok());
+  REQUIRE(index.add(std::vector<std::int64_t>{100000}, std::vector<float>{50, 50, 50, 50}).is_ok());
+  while (!scan->exhausted()) {
+    const std::span<const Neighbour> got = scan->next(500);
+    REQUIRE_FALSE(got.empty());
+    handed.insert(handed.end(), got.begin(), got.end());
+  }
+  std::set<std::int64_t> seen;
+  std::size_t wrong_distance = 0, out_of_order = 0;
+  for (std::size_t i = 0; i < handed.size(); ++i) {
+    const Neighbour& n = handed[i];
+    seen.insert(n.label);
+    float expected = 0;
+    for (std::size_t j = 0; j < kDimension; ++j) {
+      expected = std::max(expected, std::fabs(vectors[(n.label - 1) * kDimension + j] - query[j]));
+    }
+    wrong_distance += n.distance != expected;
+    out_of_order += i > 0 && n.distance < handed[i - 1].distance;
+  }
+  CHECK(wrong_distance == 0);
+  CHECK(out_of_order == 0);
+  CHECK(seen.size() == handed.size());
+  CHECK_FALSE(seen.contains(100000));
+  std::size_t removed_seen = 0;
+  for (std::int64_t label : removed) removed_seen += seen.contains(label);
+  CHECK(removed_seen < removed.size());  // the later tiers found most of them gone
+  CHECK(handed.size() == kRows - removed.size() + removed_seen);  // so every survivor is there
 }
