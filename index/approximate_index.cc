@@ -343,8 +343,11 @@ Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const floa
       if (rows[i] < 0) continue;
       const std::size_t row = static_cast<std::size_t>(rows[i]);
       float distance = distances[i];
-      for (std::size_t j = 0; j < extended; ++j) {
-        distance = std::max(distance, std::fabs(uncompared_of_row_[row * kept + j] - raw_query[compared + j]));
+      if (extended > 0) {
+        float kept_distance = 0;
+        linf_distances(uncompared_of_row_.data() + row * kept, 1, kept, extended, raw_query.data() + compared,
+                       &kept_distance);
+        distance = std::max(distance, kept_distance);
       }
       out.push_back({label_of_row_[row], distance});
     }

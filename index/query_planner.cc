@@ -545,8 +545,7 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
         if (n.label != excluded_label) labels.push_back(n.label);
       }
       // Labels without a vector are tombstones (deleted or replaced since the build): left out.
-      Result<std::vector<Neighbour>> distances = query.generation->index.distances_to(
-          labels, query.raw, query.generation->compared_dimensions(options.metric));
+      Result<std::vector<Neighbour>> distances = query.generation->index.distances_to(labels, query.raw, bound_values);
       if (!distances) return distances.status();
       std::sort(distances->begin(), distances->end(), by_distance);
       return distances;

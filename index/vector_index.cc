@@ -71,6 +71,12 @@ void largest_level_differences(const std::uint8_t* __restrict codes, std::size_t
   }
 }
 
+// The level nearest `offset` (a value less its low end) on a scale of steps 1 / `inverse_step`
+// (0: every value at level 0), held to the 256 levels.
+std::uint8_t nearest_level(double offset, double inverse_step) {
+  return static_cast<std::uint8_t>(std::clamp(offset * inverse_step, 0.0, 255.0) + 0.5);
+}
+
 }  // namespace
 
 // Stored values are finite, so the comparison-based maximum equals the true one.
@@ -167,8 +173,7 @@ void VectorIndex::encode_rows(std::size_t first_row) {
     double error = 0;
     for (std::size_t j = 0; j < dimension_; ++j) {
       const double offset = static_cast<double>(vectors_[row * dimension_ + j]) - code_low_[j];
-      const double level = std::clamp(offset * inverse, 0.0, 255.0);
-      const auto code = static_cast<std::uint8_t>(level + 0.5);  // the nearest level
+      const std::uint8_t code = nearest_level(offset, inverse);
       codes_[row * dimension_ + j] = code;
       error = std::max(error, std::fabs(offset - step * code));
     }
@@ -254,14 +259,15 @@ Result<VectorIndex::Scan> VectorIndex::scan(std::span<const float> query, std::s
 void VectorIndex::bound_all(std::span<const float> query, std::size_t compared, float* out) const {
   // The query at the same scale: its levels and how far they lie from its values.
   std::vector<std::uint8_t> query_levels(compared);
+  const double step = code_step_, inverse = code_step_ > 0 ? 1 / step : 0;
   double query_error = 0;
   float magnitude = 0;  // of the values involved: the query's, the scale's ends
   for (std::size_t j = 0; j < compared; ++j) {
-    const double value = query[j], low = code_low_.empty() ? 0 : code_low_[j];
-    const long level = code_step_ > 0 ? std::lround((value - low) / code_step_) : 0;
-    query_levels[j] = static_cast<std::uint8_t>(std::clamp(level, 0L, 255L));
-    query_error = std::max(query_error, std::fabs(value - (low + static_cast<double>(code_step_) * query_levels[j])));
-    magnitude = std::max({magnitude, std::fabs(query[j]), std::fabs(static_cast<float>(low)) + 256 * code_step_});
+    const float low = code_low_.empty() ? 0 : code_low_[j];
+    const double offset = static_cast<double>(query[j]) - low;
+    query_levels[j] = nearest_level(offset, inverse);
+    query_error = std::max(query_error, std::fabs(offset - step * query_levels[j]));
+    magnitude = std::max({magnitude, std::fabs(query[j]), std::fabs(low) + 256 * code_step_});
   }
   std::vector<std::uint8_t> levels(labels_.size());
   largest_level_differences(codes_.data(), labels_.size(), dimension_, compared, query_levels.data(), levels.data());

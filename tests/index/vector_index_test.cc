@@ -14,6 +14,33 @@
 
 using namespace waymark;
 
+namespace {
+
+// L∞ over the first `compared` values, as the index computes it (float differences).
+float linf(const float* vector, const std::vector<float>& query, std::size_t compared) {
+  float distance = 0;
+  for (std::size_t j = 0; j < compared; ++j) distance = std::max(distance, std::fabs(vector[j] - query[j]));
+  return distance;
+}
+
+// The order a scan must hand out: nearest first, equal distances by label.
+void sort_as_scanned(std::vector<Neighbour>& neighbours) {
+  std::sort(neighbours.begin(), neighbours.end(), [](const Neighbour& a, const Neighbour& b) {
+    return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
+  });
+}
+
+// Positions where two equally long lists differ in label or distance.
+std::size_t mismatches(const std::vector<Neighbour>& got, const std::vector<Neighbour>& expected) {
+  std::size_t count = 0;
+  for (std::size_t i = 0; i < got.size(); ++i) {
+    count += got[i].label != expected[i].label || got[i].distance != expected[i].distance;
+  }
+  return count;
+}
+
+}  // namespace
+
 TEST_CASE("ScansCompareOnlyTheLeadingValuesAsked") {
   // Three values each: two compared ones, then one (a curve end's coordinate, say) that only
   // some metrics may use. Label 1 is nearer on the leading two, label 2 on all three.
@@ -68,14 +95,8 @@ TEST_CASE("ScansHandOutEveryRowInOrderWhateverTheRoundSizes") {
     for (std::size_t r = 0; r < kRows; ++r) labels.push_back(static_cast<std::int64_t>((r * 7919) % kRows) + 1);
     REQUIRE(index.add(labels, vectors).is_ok());
     std::vector<Neighbour> expected;
-    for (std::size_t r = 0; r < kRows; ++r) {
-      float d = 0;
-      for (std::size_t i = 0; i < kDimension; ++i) d = std::max(d, std::fabs(vectors[r * kDimension + i] - query[i]));
-      expected.push_back({labels[r], d});
-    }
-    std::sort(expected.begin(), expected.end(), [](const Neighbour& a, const Neighbour& b) {
-      return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
-    });
+    for (std::size_t r = 0; r < kRows; ++r) expected.push_back({labels[r], linf(&vectors[r * kDimension], query, kDimension)});
+    sort_as_scanned(expected);
     Result<VectorIndex::Scan> scan = index.scan(query);
     REQUIRE(scan.is_ok());
     std::vector<Neighbour> handed;
@@ -86,11 +107,7 @@ TEST_CASE("ScansHandOutEveryRowInOrderWhateverTheRoundSizes") {
       handed.insert(handed.end(), got.begin(), got.end());
     }
     REQUIRE(handed.size() == kRows);
-    std::size_t mismatches = 0;
-    for (std::size_t i = 0; i < kRows; ++i) {
-      mismatches += handed[i].label != expected[i].label || handed[i].distance != expected[i].distance;
-    }
-    CHECK(mismatches == 0);
+    CHECK(mismatches(handed, expected) == 0);
     CHECK(scan->next(5).empty());
   };
   std::mt19937 random(11);
@@ -136,14 +153,8 @@ TEST_CASE("ScansStayExactWhenLaterVectorsLeaveTheCodedRange") {
       std::vector<float> query(kDimension);
       for (float& value : query) value = centre + std::uniform_real_distribution<float>(-0.5f, 0.5f)(random);
       std::vector<Neighbour> expected;
-      for (const auto& [label, vector] : stored) {
-        float d = 0;
-        for (std::size_t j = 0; j < compared; ++j) d = std::max(d, std::fabs(vector[j] - query[j]));
-        expected.push_back({label, d});
-      }
-      std::sort(expected.begin(), expected.end(), [](const Neighbour& a, const Neighbour& b) {
-        return a.distance != b.distance ? a.distance < b.distance : a.label < b.label;
-      });
+      for (const auto& [label, vector] : stored) expected.push_back({label, linf(vector.data(), query, compared)});
+      sort_as_scanned(expected);
       Result<VectorIndex::Scan> scan = index.scan(query, compared);
       REQUIRE(scan.is_ok());
       std::vector<Neighbour> handed;
@@ -152,11 +163,7 @@ TEST_CASE("ScansStayExactWhenLaterVectorsLeaveTheCodedRange") {
         handed.insert(handed.end(), got.begin(), got.end());
       }
       REQUIRE(handed.size() == expected.size());
-      std::size_t mismatches = 0;
-      for (std::size_t i = 0; i < handed.size(); ++i) {
-        mismatches += handed[i].label != expected[i].label || handed[i].distance != expected[i].distance;
-      }
-      CHECK(mismatches == 0);
+      CHECK(mismatches(handed, expected) == 0);
     }
   };
   add_batch(12000, 0, 1);  // the scale is fitted to these: about [−0.1, 1.1]
@@ -214,11 +221,7 @@ TEST_CASE("ScansBegunBeforeRemovalsHandOutTheSurvivorsWithTheirOwnDistances") {
   for (std::size_t i = 0; i < handed.size(); ++i) {
     const Neighbour& n = handed[i];
     seen.insert(n.label);
-    float expected = 0;
-    for (std::size_t j = 0; j < kDimension; ++j) {
-      expected = std::max(expected, std::fabs(vectors[(n.label - 1) * kDimension + j] - query[j]));
-    }
-    wrong_distance += n.distance != expected;
+    wrong_distance += n.distance != linf(&vectors[(n.label - 1) * kDimension], query, kDimension);
     out_of_order += i > 0 && n.distance < handed[i - 1].distance;
   }
   CHECK(wrong_distance == 0);
