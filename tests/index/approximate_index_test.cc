@@ -30,6 +30,16 @@ using namespace waymark::testing;
 
 namespace {
 
+// The snapshot file `index` writes for `generation`, whole.
+std::string snapshot_bytes(const ApproximateIndex& index, std::uint64_t generation) {
+  std::string bytes;
+  REQUIRE(index.write_snapshot(generation, [&](std::string_view piece) {
+    bytes.append(piece);
+    return Status::ok();
+  }).is_ok());
+  return bytes;
+}
+
 CollectionSettings approximate_settings(IndexKind kind) {
   CollectionSettings settings = settings_with(32);
   settings.index_kind = kind;
@@ -344,11 +354,7 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
   VectorIndex all(4);
   REQUIRE(all.add(labels, vectors).is_ok());
   REQUIRE(written.build(all.copy()).is_ok());
-  std::string bytes;
-  REQUIRE(written.write_snapshot(7, [&](std::string_view piece) {
-    bytes.append(piece);
-    return Status::ok();
-  }).is_ok());
+  const std::string bytes = snapshot_bytes(written, 7);
   ApproximateIndex same_length(IndexKind::graph, {1.0, 1.0, 1.0}, 4, settings);
   std::istringstream in(bytes);
   Result<ApproximateIndex::Snapshot> read = same_length.read_snapshot(in, 7);
@@ -384,11 +390,7 @@ TEST_CASE("GraphCandidatesCarryTheBoundOverTheValuesAsked") {
   REQUIRE(all.add(labels, vectors).is_ok());
   ApproximateIndex built(IndexKind::graph, weights, kDimension, settings);
   REQUIRE(built.build(all.copy()).is_ok());
-  std::string bytes;
-  REQUIRE(built.write_snapshot(7, [&](std::string_view piece) {
-    bytes.append(piece);
-    return Status::ok();
-  }).is_ok());
+  const std::string bytes = snapshot_bytes(built, 7);
   // Since the snapshot: one shape deleted, one stored.
   REQUIRE(all.remove(std::vector<std::int64_t>{5}).is_ok());
   const std::vector<float> added{1, 1, 1, 9, 9};
