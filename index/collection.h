@@ -29,7 +29,8 @@
 // an estimate, certified only when every shape was drawn.) Both modes draw candidates in
 // growing rounds until the answer is certified or the budget is spent; they differ only in the
 // default budget (exact: every stored shape; fast: 100·k for the Fréchet metrics and on
-// partitioned collections, 40·k otherwise). An uncertified answer can miss closer shapes.
+// partitioned collections, 150·k for both, 40·k otherwise). An uncertified answer can miss
+// closer shapes.
 #pragma once
 
 #include <atomic>
@@ -78,8 +79,8 @@ struct QueryOptions {
   Metric metric = Metric::hausdorff;
   bool exact = false;
   // Candidates drawn from the vector index at most; 0 = the default (in fast mode 100·k for
-  // the Fréchet metrics and on a partitioned collection, 40·k otherwise; every stored shape in
-  // exact mode). In fast
+  // the Fréchet metrics and on a partitioned collection, 150·k for both, 40·k otherwise; every
+  // stored shape in exact mode). In fast
   // mode on a graph or partitioned collection this trades speed for recall
   // (index/query_planner.cc, kFastCandidatesPerHit, has measured figures).
   std::size_t candidate_budget = 0;

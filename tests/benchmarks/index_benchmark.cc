@@ -12,8 +12,8 @@
 // at 100k shapes), exact mode on the first EXACT_QUERIES (0 leaves only fast mode, e.g. to
 // profile it). REFIT=1 ends with a landmark refit (fit, re-sketch every stored shape, switch)
 // and prints its time. FAST_BUDGETS lists fast mode's candidate budgets, comma-separated, one
-// row each (0: the default, 40·k; 100·k for Fréchet or a partitioned index), to show what
-// recall each buys.
+// row each (0: the default, 40·k; 100·k for Fréchet or a partitioned index, 150·k for both),
+// to show what recall each buys.
 // Each row runs every query before the next row starts: a query run in several rows in turn
 // found the graph, vectors and copies it touches already in the CPU's caches for all but the
 // first, which made later rows look faster than a fresh query is.
