@@ -13,7 +13,9 @@
 #include <cmath>
 #include <cstring>
 #include <functional>
+#include <limits>
 #include <mutex>
+#include <optional>
 #include <unordered_map>
 #include <unordered_set>
 #include <utility>
@@ -91,32 +93,71 @@ bool use_vectorised_storage(faiss::Index& index) {
   return true;
 }
 
-// One graph search on the calling thread, over FAISS's HNSW graph and L∞ storage: a greedy
-// descent through the upper layers, then a best-first walk of the bottom layer that keeps the
-// `ef_search` nearest nodes seen and stops once the nearest unexpanded node is farther than all
-// of them (the HNSW paper's search; Malkov & Yashunin, IEEE TPAMI 42(4), 2020, algorithms 2
-// and 5, cited from memory). FAISS's own walk (HNSW::search) was replaced for two reasons. Its
+using GraphEntry = std::pair<float, faiss::HNSW::storage_idx_t>;  // (distance, node)
+
+// The bottom layer's walk between steps (walk_graph), so that a later step with a larger ef
+// goes on from where the last stopped.
+struct GraphWalkState {
+  bool started = false;
+  std::vector<GraphEntry> unexpanded;  // heap, nearest on top: reached, not expanded yet
+  std::vector<GraphEntry> kept;        // heap, farthest on top: the ef nearest reached
+  // Reached while the list was full and no nearer than its farthest: neither queued nor kept.
+  std::vector<GraphEntry> passed_over;
+  // Kept, then pushed out of the full list (queued still, or expanded already).
+  std::vector<GraphEntry> dropped;
+};
+
+// A visited table for one walk: the thread's own, reset by advancing its mark when the walk
+// ends (also after a throw, whose marks would otherwise read as "visited" in the next walk), or
+// a private one while another walk on this thread holds it.
+class VisitedMarks {
+ public:
+  explicit VisitedMarks(std::size_t stored) {
+    thread_local std::unique_ptr<faiss::VisitedTable> shared;
+    thread_local bool shared_in_use = false;
+    if (shared_in_use) {
+      own_ = std::make_unique<faiss::VisitedTable>(static_cast<int>(stored));
+      table_ = own_.get();
+      return;
+    }
+    if (!shared || shared->visited.size() < stored) shared = std::make_unique<faiss::VisitedTable>(static_cast<int>(stored));
+    table_ = shared.get();
+    in_use_ = &shared_in_use;
+    shared_in_use = true;
+  }
+  VisitedMarks(const VisitedMarks&) = delete;
+  VisitedMarks& operator=(const VisitedMarks&) = delete;
+  ~VisitedMarks() {
+    if (!in_use_) return;
+    table_->advance();
+    *in_use_ = false;
+  }
+  faiss::VisitedTable& table() { return *table_; }
+
+ private:
+  std::unique_ptr<faiss::VisitedTable> own_;
+  faiss::VisitedTable* table_ = nullptr;
+  bool* in_use_ = nullptr;
+};
+
+// One step of a graph search on the calling thread, over FAISS's HNSW graph and L∞ storage: at
+// the first step a greedy descent through the upper layers, then a best-first walk of the
+// bottom layer that keeps the `ef` nearest nodes seen and stops once the nearest unexpanded
+// node is farther than all of them (the HNSW paper's search; Malkov & Yashunin, IEEE TPAMI
+// 42(4), 2020, algorithms 2 and 5, cited from memory). A later step with a larger ef first
+// takes back the nodes the last one passed over or dropped, then walks on. FAISS's own walk
+// (HNSW::search) was replaced for two reasons. Its
 // candidate list finds its minimum by a linear scan of ef entries per step. And it computes
 // each neighbour's distance as it reaches it, where at a million shapes each neighbour's vector
 // is a cache miss (cold, 256 bytes): here a node's unvisited neighbours are gathered first and
 // their vectors prefetched, so the misses overlap (index time at 1M: 1.40–2.32 → 0.82–1.00 ms,
 // reports/performance-log.md, 2026-12-05). IndexHNSW::search is avoided altogether: it opens an
 // OpenMP region on every call, and each of its threads zeroes a visited table of one byte per
-// stored vector. The visited table here is kept per thread and reset by advancing its mark.
-// Fills up to `wanted` (≤ ef_search) rows and distances, nearest first; rows it does not fill
-// keep their value.
-void search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t wanted, int ef_search,
-                  float* distances, faiss::Index::idx_t* rows) {
+// stored vector (VisitedMarks keeps one per thread).
+void walk_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t ef, faiss::VisitedTable& visited,
+                GraphWalkState& state) {
   const faiss::HNSW& hnsw = graph.hnsw;
   if (graph.ntotal == 0 || hnsw.entry_point < 0) return;
-  thread_local std::unique_ptr<faiss::VisitedTable> visited;
-  const auto stored = static_cast<std::size_t>(graph.ntotal);
-  if (!visited || visited->visited.size() < stored) visited = std::make_unique<faiss::VisitedTable>(static_cast<int>(stored));
-  // Marks left by a search that threw would read as "visited" in the next one: always advance.
-  struct Advance {
-    faiss::VisitedTable& table;
-    ~Advance() { table.advance(); }
-  } advance{*visited};
   const auto& storage = dynamic_cast<const faiss::IndexFlat&>(*graph.storage);
   const std::size_t dimension = static_cast<std::size_t>(storage.d);
   const float* vectors = reinterpret_cast<const float*>(storage.codes.data());
@@ -126,68 +167,83 @@ void search_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t
     const char* bytes = reinterpret_cast<const char*>(vector_of(node));
     for (std::size_t offset = 0; offset < dimension * sizeof(float); offset += 64) __builtin_prefetch(bytes + offset);
   };
+  const auto farther = std::greater<GraphEntry>();  // a min-heap's comparison
+  auto queue = [&](GraphEntry entry) {
+    state.unexpanded.push_back(entry);
+    std::push_heap(state.unexpanded.begin(), state.unexpanded.end(), farther);
+  };
+  auto keep = [&](GraphEntry entry) {
+    state.kept.push_back(entry);
+    std::push_heap(state.kept.begin(), state.kept.end());
+    if (state.kept.size() > ef) {
+      std::pop_heap(state.kept.begin(), state.kept.end());
+      state.dropped.push_back(state.kept.back());
+      state.kept.pop_back();
+    }
+  };
 
-  faiss::HNSW::storage_idx_t nearest = hnsw.entry_point;
-  float nearest_distance = distance_to(nearest);
-  for (int level = hnsw.max_level; level > 0; --level) {
-    for (bool moved = true; moved;) {
-      moved = false;
-      std::size_t begin = 0, end = 0;
-      hnsw.neighbor_range(nearest, level, &begin, &end);
-      for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) prefetch(hnsw.neighbors[i]);
-      for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) {
-        const float d = distance_to(hnsw.neighbors[i]);
-        if (d < nearest_distance) {
-          nearest_distance = d;
-          nearest = hnsw.neighbors[i];
-          moved = true;
+  if (!state.started) {
+    state.started = true;
+    faiss::HNSW::storage_idx_t nearest = hnsw.entry_point;
+    float nearest_distance = distance_to(nearest);
+    for (int level = hnsw.max_level; level > 0; --level) {
+      for (bool moved = true; moved;) {
+        moved = false;
+        std::size_t begin = 0, end = 0;
+        hnsw.neighbor_range(nearest, level, &begin, &end);
+        for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) prefetch(hnsw.neighbors[i]);
+        for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) {
+          const float d = distance_to(hnsw.neighbors[i]);
+          if (d < nearest_distance) {
+            nearest_distance = d;
+            nearest = hnsw.neighbors[i];
+            moved = true;
+          }
         }
       }
     }
+    queue({nearest_distance, nearest});
+    keep({nearest_distance, nearest});
+    visited.set(nearest);
+  } else {
+    std::vector<GraphEntry> passed_over = std::move(state.passed_over), dropped = std::move(state.dropped);
+    state.passed_over.clear();
+    state.dropped.clear();
+    for (const GraphEntry& entry : passed_over) {
+      queue(entry);
+      keep(entry);
+    }
+    for (const GraphEntry& entry : dropped) keep(entry);
   }
 
-  using Entry = std::pair<float, faiss::HNSW::storage_idx_t>;
-  const std::size_t ef = std::max<std::size_t>(static_cast<std::size_t>(ef_search), wanted);
-  thread_local std::vector<Entry> unexpanded, kept;  // heaps: nearest first / farthest first
   thread_local std::vector<faiss::HNSW::storage_idx_t> fresh;
-  unexpanded.clear();
-  kept.clear();
-  const auto farther = std::greater<Entry>();  // a min-heap's comparison
-  unexpanded.push_back({nearest_distance, nearest});
-  kept.push_back({nearest_distance, nearest});
-  visited->set(nearest);
-  while (!unexpanded.empty()) {
-    std::pop_heap(unexpanded.begin(), unexpanded.end(), farther);
-    const Entry node = unexpanded.back();
-    unexpanded.pop_back();
-    if (kept.size() >= ef && node.first > kept.front().first) break;
+  while (!state.unexpanded.empty()) {
+    std::pop_heap(state.unexpanded.begin(), state.unexpanded.end(), farther);
+    const GraphEntry node = state.unexpanded.back();
+    state.unexpanded.pop_back();
+    if (state.kept.size() >= ef && node.first > state.kept.front().first) {
+      queue(node);  // for a wider step
+      break;
+    }
     std::size_t begin = 0, end = 0;
     hnsw.neighbor_range(node.second, 0, &begin, &end);
     fresh.clear();
     for (std::size_t i = begin; i < end && hnsw.neighbors[i] >= 0; ++i) {
       const faiss::HNSW::storage_idx_t neighbour = hnsw.neighbors[i];
-      if (visited->get(neighbour)) continue;
-      visited->set(neighbour);
+      if (visited.get(neighbour)) continue;
+      visited.set(neighbour);
       prefetch(neighbour);
       fresh.push_back(neighbour);
     }
     for (const faiss::HNSW::storage_idx_t neighbour : fresh) {
       const float d = distance_to(neighbour);
-      if (kept.size() >= ef && d >= kept.front().first) continue;
-      unexpanded.push_back({d, neighbour});
-      std::push_heap(unexpanded.begin(), unexpanded.end(), farther);
-      kept.push_back({d, neighbour});
-      std::push_heap(kept.begin(), kept.end());
-      if (kept.size() > ef) {
-        std::pop_heap(kept.begin(), kept.end());
-        kept.pop_back();
+      if (state.kept.size() >= ef && d >= state.kept.front().first) {
+        state.passed_over.push_back({d, neighbour});
+        continue;
       }
+      queue({d, neighbour});
+      keep({d, neighbour});
     }
-  }
-  std::sort_heap(kept.begin(), kept.end());  // nearest first
-  for (std::size_t i = 0; i < std::min(wanted, kept.size()); ++i) {
-    distances[i] = kept[i].first;
-    rows[i] = kept[i].second;
   }
 }
 
@@ -297,6 +353,7 @@ Status ApproximateIndex::build(const VectorIndex::Contents& copy) {
   {
     std::unique_lock lock(mutex_);
     built_ = std::move(index);
+    ++swaps_;
     label_of_row_ = copy.labels;
     uncompared_of_row_ = kind_ == IndexKind::graph ? uncompared_values(copy.vectors) : std::vector<float>();
     partitions_ = partitions;
@@ -308,61 +365,147 @@ Status ApproximateIndex::build(const VectorIndex::Contents& copy) {
   return Status::ok();
 }
 
-Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const float> raw_query, std::size_t count,
-                                                            std::size_t bound_values) const {
-  const std::size_t compared = root_weights_.size();
-  const std::size_t graph_bound_values = std::clamp(bound_values, compared, fresh_.dimension());
-  std::vector<Neighbour> out;
-  {
-    std::shared_lock lock(mutex_);
-    if (!built_) return Status(StatusCode::failed_precondition, "the approximate index is not built yet");
-    const std::vector<float> query = compared_values(raw_query);
-    const std::size_t wanted = std::min(count, label_of_row_.size());
-    std::vector<float> distances(wanted);
-    std::vector<faiss::Index::idx_t> rows(wanted, -1);  // -1: none found (FAISS's convention)
-    try {
-      if (wanted == 0) {
-        // Nothing to search (FAISS would refuse k = 0).
-      } else if (kind_ == IndexKind::graph) {
-        search_graph(dynamic_cast<const faiss::IndexHNSW&>(*built_), query.data(), wanted,
-                     static_cast<int>(std::max<std::size_t>(64, wanted)), distances.data(), rows.data());
-      } else {
-        faiss::SearchParametersIVF parameters;
-        // Enough lists to hold about 8·count vectors, and at least 8 (common practice, no source).
-        const std::size_t per_list = std::max<std::size_t>(1, label_of_row_.size() / std::max<std::size_t>(1, partitions_));
-        parameters.nprobe = std::clamp<std::size_t>(8 * wanted / per_list, 8, partitions_);
-        built_->search(1, query.data(), static_cast<faiss::Index::idx_t>(wanted), distances.data(), rows.data(),
-                       &parameters);
-      }
-    } catch (const std::exception& error) {
-      return from_exception(error);
+struct ApproximateIndex::CandidateWalk::State {
+  const ApproximateIndex* index = nullptr;
+  std::vector<float> raw_query;
+  std::vector<float> query;  // its compared values, as the built index holds them
+  std::size_t bound_values = 0;
+  std::uint64_t swaps = 0;   // the built index's swap count when the walk began
+  bool built_gone = false;   // swapped since: nothing more from it
+  std::size_t built_count = 0, fresh_count = 0;  // what each index was last asked for
+  float built_frontier = 0, fresh_frontier = 0;
+  std::optional<VisitedMarks> visited;  // a graph's, from its first step
+  GraphWalkState graph;
+  std::optional<VectorIndex::Scan> fresh;
+  // Labels handed out; `returned_set` holds them too once a step must check against them
+  // (the first step's built candidates are distinct rows, so it needs no set).
+  std::vector<std::int64_t> returned;
+  std::unordered_set<std::int64_t> returned_set;
+  bool set_made = false;
+
+  // Records `label` as handed out; with `check`, false (and nothing recorded) when it was.
+  bool hand_out(std::int64_t label, bool check) {
+    if (check && !set_made) {
+      returned_set.insert(returned.begin(), returned.end());
+      set_made = true;
     }
-    // The graph's distance is L∞ over the compared values; the kept values extend it.
-    const std::size_t kept = fresh_.dimension() - compared, extended = kind_ == IndexKind::graph ? graph_bound_values - compared : 0;
-    for (std::size_t i = 0; i < wanted; ++i) {
-      if (rows[i] < 0) continue;
-      const std::size_t row = static_cast<std::size_t>(rows[i]);
-      float distance = distances[i];
-      if (extended > 0) {
-        float kept_distance = 0;
-        linf_distances(uncompared_of_row_.data() + row * kept, 1, kept, extended, raw_query.data() + compared,
-                       &kept_distance);
-        distance = std::max(distance, kept_distance);
+    if (set_made && !returned_set.insert(label).second) return false;
+    returned.push_back(label);
+    return true;
+  }
+};
+
+ApproximateIndex::CandidateWalk::CandidateWalk(std::unique_ptr<State> state) : state_(std::move(state)) {}
+ApproximateIndex::CandidateWalk::CandidateWalk(CandidateWalk&&) noexcept = default;
+ApproximateIndex::CandidateWalk::~CandidateWalk() = default;
+
+float ApproximateIndex::CandidateWalk::frontier() const { return std::min(state_->built_frontier, state_->fresh_frontier); }
+
+Result<std::vector<Neighbour>> ApproximateIndex::CandidateWalk::next(std::size_t count) {
+  State& walk = *state_;
+  const ApproximateIndex& index = *walk.index;
+  const std::size_t compared = index.root_weights_.size();
+  std::vector<Neighbour> out;
+  if (count > walk.built_count && !walk.built_gone) {
+    std::shared_lock lock(index.mutex_);
+    if (!index.built_ || index.swaps_ != walk.swaps) {
+      walk.built_gone = true;
+      walk.built_frontier = std::numeric_limits<float>::infinity();
+    } else {
+      const bool check = walk.built_count > 0;
+      const std::size_t wanted = std::min(count, index.label_of_row_.size());
+      std::vector<float> distances(wanted);
+      std::vector<faiss::Index::idx_t> rows(wanted, -1);  // -1: none found (FAISS's convention)
+      try {
+        if (wanted == 0) {
+          // Nothing to search (FAISS would refuse k = 0).
+        } else if (index.kind_ == IndexKind::graph) {
+          const auto& graph = dynamic_cast<const faiss::IndexHNSW&>(*index.built_);
+          if (!walk.visited) walk.visited.emplace(static_cast<std::size_t>(graph.ntotal));
+          const std::size_t ef = std::max<std::size_t>(64, wanted);
+          walk_graph(graph, walk.query.data(), ef, walk.visited->table(), walk.graph);
+          std::vector<GraphEntry> nearest = walk.graph.kept;
+          std::sort(nearest.begin(), nearest.end());
+          for (std::size_t i = 0; i < std::min(wanted, nearest.size()); ++i) {
+            distances[i] = nearest[i].first;
+            rows[i] = nearest[i].second;
+          }
+          // Nodes not handed out lie (approximately) beyond the last one that was, while any
+          // are left: kept and not handed out, queued, passed over or dropped.
+          const std::size_t handed = std::min(wanted, nearest.size());
+          const bool more = nearest.size() > handed || !walk.graph.unexpanded.empty() ||
+                            !walk.graph.passed_over.empty() || !walk.graph.dropped.empty();
+          walk.built_frontier = handed > 0 && more ? nearest[handed - 1].first : std::numeric_limits<float>::infinity();
+        } else {
+          faiss::SearchParametersIVF parameters;
+          // Enough lists to hold about 8·count vectors, and at least 8 (common practice, no source).
+          const std::size_t per_list =
+              std::max<std::size_t>(1, index.label_of_row_.size() / std::max<std::size_t>(1, index.partitions_));
+          parameters.nprobe = std::clamp<std::size_t>(8 * wanted / per_list, 8, index.partitions_);
+          index.built_->search(1, walk.query.data(), static_cast<faiss::Index::idx_t>(wanted), distances.data(),
+                               rows.data(), &parameters);
+        }
+      } catch (const std::exception& error) {
+        return from_exception(error);
       }
-      out.push_back({label_of_row_[row], distance});
+      // The graph's distance is L∞ over the compared values; the kept values extend it.
+      const std::size_t kept = index.fresh_.dimension() - compared;
+      const std::size_t extended = index.kind_ == IndexKind::graph ? walk.bound_values - compared : 0;
+      for (std::size_t i = 0; i < wanted; ++i) {
+        if (rows[i] < 0) continue;
+        const std::size_t row = static_cast<std::size_t>(rows[i]);
+        if (!walk.hand_out(index.label_of_row_[row], check)) continue;
+        float distance = distances[i];
+        if (extended > 0) {
+          float kept_distance = 0;
+          linf_distances(index.uncompared_of_row_.data() + row * kept, 1, kept, extended,
+                         walk.raw_query.data() + compared, &kept_distance);
+          distance = std::max(distance, kept_distance);
+        }
+        out.push_back({index.label_of_row_[row], distance});
+      }
+      walk.built_count = count;
     }
   }
   // Fresh vectors, nearest by L∞; a label can be in both only while a build is swapping in.
-  Result<VectorIndex::Scan> fresh = fresh_.scan(raw_query, kind_ == IndexKind::graph ? graph_bound_values : compared);
-  if (!fresh) return fresh.status();
-  const std::span<const Neighbour> fresh_nearest = fresh->next(count);
-  if (fresh_nearest.empty()) return out;  // as between builds mostly: no set of labels to make
-  std::unordered_set<std::int64_t> seen;
-  for (const Neighbour& n : out) seen.insert(n.label);
-  for (const Neighbour& n : fresh_nearest) {
-    if (seen.insert(n.label).second) out.push_back(n);
+  if (count > walk.fresh_count) {
+    if (!walk.fresh) {
+      Result<VectorIndex::Scan> scan =
+          index.fresh_.scan(walk.raw_query, index.kind_ == IndexKind::graph ? walk.bound_values : compared);
+      if (!scan) return scan.status();
+      walk.fresh.emplace(std::move(*scan));
+    }
+    const std::span<const Neighbour> fresh_nearest = walk.fresh->next(count - walk.fresh_count);
+    walk.fresh_count = count;
+    for (const Neighbour& n : fresh_nearest) {
+      if (walk.hand_out(n.label, true)) out.push_back(n);
+    }
+    walk.fresh_frontier = walk.fresh->exhausted() || fresh_nearest.empty() ? std::numeric_limits<float>::infinity()
+                                                                           : fresh_nearest.back().distance;
   }
   return out;
+}
+
+Result<ApproximateIndex::CandidateWalk> ApproximateIndex::walk(std::span<const float> raw_query,
+                                                               std::size_t bound_values) const {
+  auto state = std::make_unique<CandidateWalk::State>();
+  state->index = this;
+  state->raw_query.assign(raw_query.begin(), raw_query.end());
+  state->bound_values = std::clamp(bound_values, root_weights_.size(), fresh_.dimension());
+  {
+    std::shared_lock lock(mutex_);
+    if (!built_) return Status(StatusCode::failed_precondition, "the approximate index is not built yet");
+    state->swaps = swaps_;
+  }
+  state->query = compared_values(raw_query);
+  return CandidateWalk(std::move(state));
+}
+
+Result<std::vector<Neighbour>> ApproximateIndex::candidates(std::span<const float> raw_query, std::size_t count,
+                                                            std::size_t bound_values) const {
+  Result<CandidateWalk> walk = this->walk(raw_query, bound_values);
+  if (!walk) return walk.status();
+  return walk->next(count);
 }
 
 namespace {
@@ -572,6 +715,7 @@ Status ApproximateIndex::restore(Snapshot snapshot, const VectorIndex::Contents&
   (void)fresh_.remove(fresh_.copy().labels);
   if (Status s = fresh_.add(fresh_labels, fresh_vectors); !s.is_ok()) return s;
   built_ = std::move(snapshot.index);
+  ++swaps_;
   label_of_row_ = std::move(snapshot.labels);
   uncompared_of_row_ = std::move(uncompared);
   partitions_ = snapshot.partitions;

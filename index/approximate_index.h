@@ -93,6 +93,39 @@ class ApproximateIndex {
   Result<std::vector<Neighbour>> candidates(std::span<const float> raw_query, std::size_t count,
                                             std::size_t bound_values = 0) const;
 
+  // Candidates in steps, for a caller that decides after each step whether it wants more (the
+  // query planner's fast mode). On a graph the walk is continued where it stopped, not begun
+  // again: the nodes it passed over or dropped from its ef nearest come back into play, and
+  // it walks on until it keeps the new count. A partitioned index searches again. Holds the
+  // index's shared lock only inside next(); a walk that finds the built index swapped since
+  // it began (a rebuild, a restore) takes no more candidates from it, and the fresh index's
+  // part goes on. The walk must stay on the thread that began it, and live no longer than
+  // this index.
+  class CandidateWalk {
+   public:
+    CandidateWalk(CandidateWalk&&) noexcept;
+    CandidateWalk& operator=(CandidateWalk&&) = delete;
+    ~CandidateWalk();
+    // The candidates, as candidates(raw_query, count, bound_values) describes them, that the
+    // first `count` of either index hold and no earlier call returned; each label once.
+    // Larger counts widen the walk; a count no larger than before returns nothing.
+    Result<std::vector<Neighbour>> next(std::size_t count);
+    // The distance (L∞ over the compared values) of the last graph candidate handed out, while
+    // the walk may find more: nodes not handed out are likely (not certainly: the walk is
+    // approximate) at least this far. Or, where it is smaller, the last fresh candidate's
+    // distance (fresh ones come in exact order). ∞ when neither index can give more, and 0 on a
+    // partitioned index, whose lists say nothing of it.
+    float frontier() const;
+
+   private:
+    friend class ApproximateIndex;
+    struct State;
+    explicit CandidateWalk(std::unique_ptr<State> state);
+    std::unique_ptr<State> state_;
+  };
+  // failed_precondition when nothing is built.
+  Result<CandidateWalk> walk(std::span<const float> raw_query, std::size_t bound_values = 0) const;
+
   // Streams the built index as a snapshot file (index/STORE_FORMAT.md, "Approximate index
   // snapshot"), tagged with `generation`, to `sink` in pieces: no copy of the whole file is
   // ever held (a graph of a million shapes is hundreds of MB). Holds the index's shared lock
@@ -148,6 +181,7 @@ class ApproximateIndex {
   VectorIndex fresh_;                          // internally locked
   std::atomic<std::size_t> tombstones_{0};
   std::atomic<std::size_t> builds_{0};
+  std::uint64_t swaps_ = 0;  // guarded by mutex_: how often built_ was replaced
   std::atomic<double> last_build_seconds_{0};
   std::string snapshot_note_ = "none";  // guarded by mutex_
 };

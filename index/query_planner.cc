@@ -51,6 +51,11 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // lists scanned) but 150·k for the Fréchet metrics, where 100·k found 0.946–0.951 in three 1M
 // runs: too near the 0.95 line. Hausdorff and the sketch metric keep 40·k on graphs and
 // exhaustive indexes, where it already finds 0.978.
+// On a graph the Fréchet metrics' 100·k is a ceiling (run_query): the walk takes 40·k, and
+// widens only while its frontier can still be within the k-th best distance. At 1M with 2,000
+// near-copies of each figure it widens on nearly every query (recall 0.985 before and after,
+// p50 5.09–5.29 → 5.18–5.56 ms); with 20 copies of each of 50,000 figures it does not (recall
+// 1.000 before and after, p50 3.53–3.72 → 2.34–2.49 ms; reports/performance-log.md).
 // Shifted rings (tests/index/approximate_index_test.cc): Fréchet 0.985 at 40·k.
 constexpr std::size_t kFastCandidatesPerHit = 40;
 constexpr std::size_t kWideFastCandidatesPerHit = 100;      // the Fréchet metrics; partitioned indexes
@@ -480,6 +485,7 @@ Result<bool> walk_candidates(const Collection::State& state, const PreparedQuery
       return scan->next(fetch - drawn);
     }();
     drawn += round.size();
+    stats.candidates_drawn += round.size();
     for (const Neighbour& n : round) {
       // Once this shape is ruled out, so is every later one: none of them is read.
       if (enough(query.lower_bound_from(n.distance))) return true;
@@ -528,12 +534,18 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     // partitions, which compare another way), so that once the next
     // bound passes the k-th best distance the rest cannot enter the answer and are never read
     // from the store.
-    Result<std::vector<Neighbour>> by_bound = [&]() -> Result<std::vector<Neighbour>> {
+    const std::size_t bound_values = query.generation->compared_dimensions(options.metric);
+    Result<ApproximateIndex::CandidateWalk> walk = [&] {
       TimeAddedTo timer(answer.stats.index_milliseconds);
-      const std::size_t bound_values = query.generation->compared_dimensions(options.metric);
-      Result<std::vector<Neighbour>> candidates =
-          approximate->candidates(query.raw, budget + (excluded_label ? 1 : 0), bound_values);
+      return approximate->walk(query.raw, bound_values);
+    }();
+    if (!walk) return walk.status();
+    // The next candidates, up to `count` in all, in lower-bound order.
+    auto draw = [&](std::size_t count) -> Result<std::vector<Neighbour>> {
+      TimeAddedTo timer(answer.stats.index_milliseconds);
+      Result<std::vector<Neighbour>> candidates = walk->next(count + (excluded_label ? 1 : 0));
       if (!candidates) return candidates.status();
+      answer.stats.candidates_drawn += candidates->size();
       const auto by_distance = [](const Neighbour& a, const Neighbour& b) { return a.distance < b.distance; };
       if (approximate->kind() == IndexKind::graph) {
         // A graph's distances are already the bound, L∞ over the metric's values as the
@@ -554,8 +566,17 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
       if (!distances) return distances.status();
       std::sort(distances->begin(), distances->end(), by_distance);
       return distances;
-    }();
-    if (!by_bound) return by_bound.status();
+    };
+    // The Fréchet metrics' 100·k default on a graph is a ceiling: the walk starts at 40·k and
+    // widens only while its frontier (the last candidate it handed out) could still be within
+    // the k-th best distance found, as on a graph holding thousands of near-copies of the
+    // query; where the figure has a few, the first 40·k settle it. An explicit budget is
+    // drawn whole.
+    const std::size_t first_count = options.candidate_budget == 0 && approximate->kind() == IndexKind::graph
+                                        ? std::min(budget, kFastCandidatesPerHit * options.k)
+                                        : budget;
+    Result<std::vector<Neighbour>> drawn = draw(first_count);
+    if (!drawn) return drawn.status();
     // Fréchet: the first candidates by lower bound are scored in order of an upper bound from
     // their copies (coupling_bounds), so that the first k scored are likely the k nearest and
     // the threshold falls to about the k-th distance at once; and the threshold starts at the
@@ -567,7 +588,7 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     double cap = kInfinity;
     if (coupled) {
       const std::span<Neighbour> prefix =
-          std::span(*by_bound).first(std::min(by_bound->size(), kCoupledCandidatesPerHit * options.k));
+          std::span(*drawn).first(std::min(drawn->size(), kCoupledCandidatesPerHit * options.k));
       const std::vector<double> bounds = coupling_bounds(state, query, prefix);
       std::vector<std::pair<double, Neighbour>> by_upper;
       by_upper.reserve(prefix.size());
@@ -578,11 +599,9 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
       for (std::size_t c = 0; c < prefix.size(); ++c) prefix[c] = by_upper[c].second;
       if (by_upper.size() >= options.k) cap = by_upper[options.k - 1].first;
     }
-    // Scores the candidates in that order into answer.hits; the stats add up over both runs.
-    auto score = [&](double threshold_cap) -> Status {
-      NearestSelection selection(query, options.metric, options.k, answer.stats);
-      selection.cap_threshold(threshold_cap);
-      for (const Neighbour& n : *by_bound) {
+    // Scores `candidates`, in their order, into `selection`.
+    auto score = [&](NearestSelection& selection, std::span<const Neighbour> candidates) -> Status {
+      for (const Neighbour& n : candidates) {
         if (options.metric != Metric::sketch && query.lower_bound_from(n.distance) > selection.threshold()) {
           answer.stats.pruned_by_sketch_bound += 1;
           continue;
@@ -592,12 +611,26 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
         if (!candidate) return candidate.status();
         if (*candidate) selection.consider(**candidate);
       }
-      answer.hits = selection.finish();
       return Status::ok();
     };
-    if (Status s = score(cap); !s.is_ok()) return s;
+    {
+      NearestSelection selection(query, options.metric, options.k, answer.stats);
+      selection.cap_threshold(cap);
+      if (Status s = score(selection, *drawn); !s.is_ok()) return s;
+      if (first_count < budget && options.metric != Metric::sketch &&
+          query.lower_bound_from(walk->frontier()) <= selection.threshold()) {
+        Result<std::vector<Neighbour>> wider = draw(budget);
+        if (!wider) return wider.status();
+        if (Status s = score(selection, *wider); !s.is_ok()) return s;
+        drawn->insert(drawn->end(), wider->begin(), wider->end());
+      }
+      answer.hits = selection.finish();
+    }
+    // The stats add up over both runs.
     if (cap < kInfinity && answer.hits.size() < options.k) {
-      if (Status s = score(kInfinity); !s.is_ok()) return s;
+      NearestSelection selection(query, options.metric, options.k, answer.stats);
+      if (Status s = score(selection, *drawn); !s.is_ok()) return s;
+      answer.hits = selection.finish();
     }
     return answer;
   }

@@ -4,8 +4,8 @@
 //                        [INDEX=exhaustive|graph|partitioned] [SCANNED_QUERIES=QUERIES]
 //                        [EXACT_QUERIES=QUERIES] [REFIT=0|1|2] [FAST_BUDGETS=0] [WRITERS=1]
 // Prints a table of medians and p99s (milliseconds), the median time in the vector indexes
-// (QueryStats::index_milliseconds), the mean candidates fetched from the store, refused by the
-// decision procedure and given an exact value per query; the exact-mode / full-scan ratio,
+// (QueryStats::index_milliseconds), the mean candidates drawn from the vector indexes, fetched
+// from the store, refused by the decision procedure and given an exact value per query; the exact-mode / full-scan ratio,
 // fast-mode recall@10 against the full scan and against certified exact-mode answers (the same
 // answers, and affordable at a million shapes), and memory and disk per shape.
 // The full exact scan runs on the first SCANNED_QUERIES queries only (it takes seconds per query
@@ -22,8 +22,8 @@
 // `--open DIRECTORY COPY_CAPACITY`, which opens the collection, prints the seconds and exits.
 // With WAYMARK_BENCHMARK_KEEP set in the environment the collection is left in the temporary
 // folder (it says where), e.g. to time or profile `--open` on it again. With
-// WAYMARK_BENCHMARK_REUSE set as well, a later run with the same SHAPES, VERTICES, LANDMARKS
-// and INDEX opens that collection instead of making it again (ingest, build and restarts are
+// WAYMARK_BENCHMARK_REUSE set as well, a later run with the same SHAPES, VERTICES, LANDMARKS,
+// INDEX and WAYMARK_BENCHMARK_TEMPLATES opens that collection instead of making it again (ingest, build and restarts are
 // then not timed), so that a change to queries alone is measured in a minute at 1M shapes.
 // The kept collection is not checked against the arguments beyond its size: after changing
 // anything the ingest or the index depends on, run once without REUSE.
@@ -56,7 +56,9 @@ double percentile(std::vector<double> values, double p) {
   return values[std::min(values.size() - 1, static_cast<std::size_t>(p * values.size()))];
 }
 
-// Perturbed copies of 500 random-walk templates (seeded, invented).
+// Perturbed copies of random-walk templates (seeded, invented): 500 unless
+// WAYMARK_BENCHMARK_TEMPLATES says otherwise (the fewer templates, the more near-copies a
+// query's answer must be told apart from).
 Shape synthetic(std::size_t n, const std::vector<Shape>& templates) {
   SeededRandom random(n * 7919 + 1);
   return testing::jittered(templates[random.below(templates.size())], random, 0.3);
@@ -115,7 +117,13 @@ int main(int argc, char** argv) {
   const bool reuse = std::getenv("WAYMARK_BENCHMARK_REUSE") != nullptr && std::filesystem::exists(directory);
   SeededRandom random(1);
   std::vector<Shape> templates;
-  for (int t = 0; t < 500; ++t) templates.push_back(testing::random_walk(random, vertices));
+  const char* template_setting = std::getenv("WAYMARK_BENCHMARK_TEMPLATES");
+  const std::size_t template_count = template_setting ? std::strtoull(template_setting, nullptr, 10) : 500;
+  if (template_count == 0) {
+    std::fprintf(stderr, "WAYMARK_BENCHMARK_TEMPLATES must be a number of at least 1\n");
+    return 2;
+  }
+  for (std::size_t t = 0; t < template_count; ++t) templates.push_back(testing::random_walk(random, vertices));
   ApproximateIndexSettings build_now;
   build_now.minimum_size = 1;
   Result<std::unique_ptr<Collection>> collection = Status(StatusCode::not_found, "not made yet");
@@ -243,8 +251,9 @@ int main(int argc, char** argv) {
 
   const CollectionStatistics statistics = (*collection)->statistics();
   const double raw_bytes = 16.0 * vertices + 4.0 * landmarks;  // vertices as float64 pairs + the vector
-  std::printf("shapes %zu, vertices %zu, landmarks %zu, queries %zu (%zu with full scan), index %s, one thread\n",
-              shapes, vertices, landmarks, queries, std::min(queries, scanned_queries), index_kind_name(*kind));
+  std::printf("shapes %zu (jittered copies of %zu figures), vertices %zu, landmarks %zu, queries %zu (%zu with full "
+              "scan), index %s, one thread\n",
+              shapes, template_count, vertices, landmarks, queries, std::min(queries, scanned_queries), index_kind_name(*kind));
   if (reuse) {
     std::printf("the collection kept by an earlier run, reused: ingest, build and restarts not timed\n");
   } else {
@@ -265,8 +274,8 @@ int main(int argc, char** argv) {
               static_cast<double>(statistics.resident_copy_bytes) / shapes,
               static_cast<double>(statistics.store_bytes) / shapes, raw_bytes, memory_bytes / raw_bytes,
               statistics.store_bytes / shapes / raw_bytes);
-  std::printf("%-34s %10s %10s %13s %8s %9s %12s %10s\n", "kNN k=10", "p50 ms", "p99 ms", "index p50 ms", "fetched",
-              "refused", "exact evals", "certified");
+  std::printf("%-34s %10s %10s %13s %8s %8s %9s %12s %10s\n", "kNN k=10", "p50 ms", "p99 ms", "index p50 ms", "drawn",
+              "fetched", "refused", "exact evals", "certified");
   for (Metric metric : {Metric::hausdorff, Metric::frechet}) {
     struct Mode {
       std::string name;  // the row's label: metric, then mode
@@ -275,7 +284,7 @@ int main(int argc, char** argv) {
       std::size_t budget = 0;  // candidate budget; 0: the default
       std::vector<double> times;
       std::vector<double> index_times;  // QueryStats::index_milliseconds
-      double fetched = 0, refused_by_decision = 0, evaluations = 0;
+      double drawn = 0, fetched = 0, refused_by_decision = 0, evaluations = 0;
       int certified = 0;
       std::vector<QueryAnswer> answers;  // by query; empty where the mode did not run
       testing::RecallCount recall, recall_against_certified;  // fast modes
@@ -314,6 +323,7 @@ int main(int argc, char** argv) {
           return 1;
         }
         mode.index_times.push_back(answer->stats.index_milliseconds);
+        mode.drawn += answer->stats.candidates_drawn;
         mode.fetched += answer->stats.candidates_fetched;
         mode.refused_by_decision += answer->stats.pruned_by_decision;
         mode.evaluations += answer->stats.exact_evaluations;
@@ -337,9 +347,9 @@ int main(int argc, char** argv) {
     for (const Mode& mode : modes) {
       if (mode.times.empty()) continue;
       const double count = static_cast<double>(mode.times.size());
-      std::printf("%-34s %10.2f %10.2f %13.2f %8.0f %9.1f %12.1f %9d/%zu\n", mode.name.c_str(),
+      std::printf("%-34s %10.2f %10.2f %13.2f %8.0f %8.0f %9.1f %12.1f %9d/%zu\n", mode.name.c_str(),
                   percentile(mode.times, 0.5), percentile(mode.times, 0.99), percentile(mode.index_times, 0.5),
-                  mode.fetched / count, mode.refused_by_decision / count,
+                  mode.drawn / count, mode.fetched / count, mode.refused_by_decision / count,
                   mode.evaluations / count, mode.certified, mode.times.size());
     }
     if (!modes[scan_mode].times.empty() && !modes[exact_mode].times.empty()) {
