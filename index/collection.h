@@ -29,9 +29,9 @@
 // an estimate, certified only when every shape was drawn.) Both modes draw candidates in
 // growing rounds until the answer is certified or the budget is spent; they differ only in the
 // default budget (exact: every stored shape; fast: 100·k for the Fréchet metrics and on
-// partitioned collections, 150·k for both, 40·k otherwise; on a graph the Fréchet metrics
-// take 40·k and widen to 100·k only while the candidates' frontier could still be within the
-// k-th best distance). An uncertified answer can miss closer shapes.
+// partitioned collections, 150·k for both, 40·k otherwise; on a graph a ceiling: 20·k are
+// taken first, and more only while the candidates' frontier could still be within the k-th
+// best distance). An uncertified answer can miss closer shapes.
 #pragma once
 
 #include <atomic>
@@ -80,8 +80,8 @@ struct QueryOptions {
   Metric metric = Metric::hausdorff;
   bool exact = false;
   // Candidates drawn from the vector index at most; 0 = the default (in fast mode 100·k for
-  // the Fréchet metrics and on a partitioned collection, 150·k for both, 40·k otherwise, with
-  // the Fréchet metrics' 100·k on a graph a ceiling, above; every stored shape in exact mode). In fast
+  // the Fréchet metrics and on a partitioned collection, 150·k for both, 40·k otherwise, on a
+  // graph a ceiling, above; every stored shape in exact mode). In fast
   // mode on a graph or partitioned collection this trades speed for recall
   // (index/query_planner.cc, kFastCandidatesPerHit, has measured figures).
   std::size_t candidate_budget = 0;

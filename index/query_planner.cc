@@ -51,13 +51,15 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // lists scanned) but 150·k for the Fréchet metrics, where 100·k found 0.946–0.951 in three 1M
 // runs: too near the 0.95 line. Hausdorff and the sketch metric keep 40·k on graphs and
 // exhaustive indexes, where it already finds 0.978.
-// On a graph the Fréchet metrics' 100·k is a ceiling (run_query): the walk takes 40·k, and
-// widens only while its frontier can still be within the k-th best distance. At 1M with 2,000
-// near-copies of each figure it widens on nearly every query (recall 0.985 before and after,
-// p50 5.09–5.29 → 5.18–5.56 ms); with 20 copies of each of 50,000 figures it does not (recall
-// 1.000 before and after, p50 3.53–3.72 → 2.34–2.49 ms; reports/performance-log.md).
+// On a graph these budgets are ceilings (run_query): the walk takes 20·k, and widens (to 40·k,
+// then for the Fréchet metrics 100·k) only while its frontier can still be within the k-th
+// best distance. At 1M with 2,000 near-copies of each figure it widens on most queries (recall
+// 0.982 / 0.987 before and after, p50 alike); with 20 copies of each of 50,000 figures it does
+// not (recall 1.000, p50 1.40–1.46 → 0.96–1.03 ms and, against a fixed 100·k, 3.53–3.72 →
+// 1.92–1.94 ms for Fréchet; reports/performance-log.md).
 // Shifted rings (tests/index/approximate_index_test.cc): Fréchet 0.985 at 40·k.
 constexpr std::size_t kFastCandidatesPerHit = 40;
+constexpr std::size_t kFirstStepPerHit = 20;  // a graph's first step, widened as run_query says
 constexpr std::size_t kWideFastCandidatesPerHit = 100;      // the Fréchet metrics; partitioned indexes
 constexpr std::size_t kWidestFastCandidatesPerHit = 150;    // the Fréchet metrics on partitioned indexes
 // How many of fast mode's Fréchet candidates, per hit asked for, get an upper bound from their
@@ -567,15 +569,20 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
       std::sort(distances->begin(), distances->end(), by_distance);
       return distances;
     };
-    // The Fréchet metrics' 100·k default on a graph is a ceiling: the walk starts at 40·k and
-    // widens only while its frontier (the last candidate it handed out) could still be within
-    // the k-th best distance found, as on a graph holding thousands of near-copies of the
-    // query; where the figure has a few, the first 40·k settle it. An explicit budget is
-    // drawn whole.
-    const std::size_t first_count = options.candidate_budget == 0 && approximate->kind() == IndexKind::graph
-                                        ? std::min(budget, kFastCandidatesPerHit * options.k)
-                                        : budget;
-    Result<std::vector<Neighbour>> drawn = draw(first_count);
+    // On a graph the default budget is a ceiling: the walk starts at 20·k and widens, to 40·k
+    // and then the budget, only while its frontier (the last candidate it handed out) could
+    // still be within the k-th best distance found, as on a graph holding thousands of
+    // near-copies of the query; where the figure has a few, the first 20·k settle it. An
+    // explicit budget is drawn whole, and the sketch metric, with no distance to compare the
+    // frontier with, draws its budget whole too.
+    std::vector<std::size_t> steps;
+    if (options.candidate_budget == 0 && approximate->kind() == IndexKind::graph && options.metric != Metric::sketch) {
+      for (const std::size_t per_hit : {kFirstStepPerHit, kFastCandidatesPerHit}) {
+        if (per_hit * options.k < budget) steps.push_back(per_hit * options.k);
+      }
+    }
+    steps.push_back(budget);
+    Result<std::vector<Neighbour>> drawn = draw(steps.front());
     if (!drawn) return drawn.status();
     // Fréchet: the first candidates by lower bound are scored in order of an upper bound from
     // their copies (coupling_bounds), so that the first k scored are likely the k nearest and
@@ -617,9 +624,9 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
       NearestSelection selection(query, options.metric, options.k, answer.stats);
       selection.cap_threshold(cap);
       if (Status s = score(selection, *drawn); !s.is_ok()) return s;
-      if (first_count < budget && options.metric != Metric::sketch &&
-          query.lower_bound_from(walk->frontier()) <= selection.threshold()) {
-        Result<std::vector<Neighbour>> wider = draw(budget);
+      for (std::size_t step = 1;
+           step < steps.size() && query.lower_bound_from(walk->frontier()) <= selection.threshold(); ++step) {
+        Result<std::vector<Neighbour>> wider = draw(steps[step]);
         if (!wider) return wider.status();
         if (Status s = score(selection, *wider); !s.is_ok()) return s;
         drawn->insert(drawn->end(), wider->begin(), wider->end());
