@@ -423,6 +423,37 @@ std::vector<double> coupling_bounds(const Collection::State& state, const Prepar
   return bounds;
 }
 
+// Puts `prefix` (candidates in lower-bound order) in order of their upper bounds from float
+// copies (coupling_bounds; those without one keep their order, after the others) and returns
+// the k-th smallest bound, or ∞ with fewer than k. The first 2·k are bounded, and of the rest
+// only those whose lower bound is within the k-th smallest bound so far: where a few
+// near-copies lead, the others could not use one.
+double order_by_upper_bounds(const Collection::State& state, const PreparedQuery& query, std::size_t k,
+                             std::span<Neighbour> prefix) {
+  const std::size_t leading = std::min(prefix.size(), 2 * k);
+  std::vector<double> bounds = coupling_bounds(state, query, prefix.first(leading));
+  bounds.resize(prefix.size(), kInfinity);
+  if (leading >= k) {
+    std::vector<double> smallest(bounds.begin(), bounds.begin() + static_cast<std::ptrdiff_t>(leading));
+    std::nth_element(smallest.begin(), smallest.begin() + static_cast<std::ptrdiff_t>(k - 1), smallest.end());
+    std::vector<std::size_t> within;
+    std::vector<Neighbour> within_candidates;
+    for (std::size_t c = leading; c < prefix.size(); ++c) {
+      if (query.lower_bound_from(prefix[c].distance) > smallest[k - 1]) continue;
+      within.push_back(c);
+      within_candidates.push_back(prefix[c]);
+    }
+    const std::vector<double> within_bounds = coupling_bounds(state, query, within_candidates);
+    for (std::size_t w = 0; w < within.size(); ++w) bounds[within[w]] = within_bounds[w];
+  }
+  std::vector<std::pair<double, Neighbour>> by_upper;
+  by_upper.reserve(prefix.size());
+  for (std::size_t c = 0; c < prefix.size(); ++c) by_upper.push_back({bounds[c], prefix[c]});
+  std::stable_sort(by_upper.begin(), by_upper.end(), [](const auto& a, const auto& b) { return a.first < b.first; });
+  for (std::size_t c = 0; c < prefix.size(); ++c) prefix[c] = by_upper[c].second;
+  return by_upper.size() >= k ? by_upper[k - 1].first : kInfinity;
+}
+
 // The stored shape under `label`, framed, when it is still stored under that label, can be
 // within `threshold` (∞: any) and passes the filter; nullopt when it was removed or replaced
 // since the index was searched (also how an approximate index's tombstones are skipped), its
@@ -585,27 +616,17 @@ Result<QueryAnswer> run_query(const Collection::State& state, const PreparedQuer
     Result<std::vector<Neighbour>> drawn = draw(steps.front());
     if (!drawn) return drawn.status();
     // Fréchet: the first candidates by lower bound are scored in order of an upper bound from
-    // their copies (coupling_bounds), so that the first k scored are likely the k nearest and
-    // the threshold falls to about the k-th distance at once; and the threshold starts at the
-    // k-th smallest of those bounds: k candidates are each within their bound, so no candidate
-    // farther can be among the k nearest of them. That holds only while those k stay stored
-    // and pass the filter, so there is no cap with a filter, and a query that ends with fewer
-    // than k hits (a concurrent delete took one) runs again without it.
+    // their copies, so that the first k scored are likely the k nearest and the threshold
+    // falls to about the k-th distance at once; and the threshold starts at the k-th smallest
+    // of those bounds: k candidates are each within their bound, so no candidate farther can
+    // be among the k nearest of them. That holds only while those k stay stored and pass the
+    // filter, so there is no cap with a filter, and a query that ends with fewer than k hits
+    // (a concurrent delete took one) runs again without it.
     const bool coupled = options.metric == Metric::frechet && query.curve && options.metadata_filter.empty();
-    double cap = kInfinity;
-    if (coupled) {
-      const std::span<Neighbour> prefix =
-          std::span(*drawn).first(std::min(drawn->size(), kCoupledCandidatesPerHit * options.k));
-      const std::vector<double> bounds = coupling_bounds(state, query, prefix);
-      std::vector<std::pair<double, Neighbour>> by_upper;
-      by_upper.reserve(prefix.size());
-      for (std::size_t c = 0; c < prefix.size(); ++c) by_upper.push_back({bounds[c], prefix[c]});
-      // Stable: candidates without a bound keep their lower-bound order, after the others.
-      std::stable_sort(by_upper.begin(), by_upper.end(),
-                       [](const auto& a, const auto& b) { return a.first < b.first; });
-      for (std::size_t c = 0; c < prefix.size(); ++c) prefix[c] = by_upper[c].second;
-      if (by_upper.size() >= options.k) cap = by_upper[options.k - 1].first;
-    }
+    const double cap = coupled ? order_by_upper_bounds(state, query, options.k,
+                                                       std::span(*drawn).first(std::min(
+                                                           drawn->size(), kCoupledCandidatesPerHit * options.k)))
+                               : kInfinity;
     // Scores `candidates`, in their order, into `selection`.
     auto score = [&](NearestSelection& selection, std::span<const Neighbour> candidates) -> Status {
       for (const Neighbour& n : candidates) {
