@@ -36,8 +36,10 @@
 #include <cstdlib>
 #include <filesystem>
 #include <limits>
+#include <optional>
 #include <string>
 #include <thread>
+#include <utility>
 #include <vector>
 
 #include "index/collection.h"
@@ -232,14 +234,22 @@ int main(int argc, char** argv) {
       }
     }
   }
-  if (refit_first) {
+  // A landmark refit of every stored shape: its seconds and shapes per second, or nullopt
+  // (the error printed) when it fails.
+  auto run_refit = [&]() -> std::optional<std::pair<double, double>> {
     RefitProgress progress;
     const auto started = Clock::now();
     if (Result<std::uint64_t> generation = (*collection)->refit(RefitOptions{}, progress); !generation) {
       std::fprintf(stderr, "%s\n", generation.status().to_string().c_str());
-      return 1;
+      return std::nullopt;
     }
-    std::printf("landmark refit before the queries: %.2f s\n", milliseconds(Clock::now() - started) / 1000);
+    const double seconds = milliseconds(Clock::now() - started) / 1000;
+    return std::pair{seconds, static_cast<double>(progress.shapes_done) / seconds};
+  };
+  if (refit_first) {
+    const std::optional<std::pair<double, double>> refitted = run_refit();
+    if (!refitted) return 1;
+    std::printf("landmark refit before the queries: %.2f s\n", refitted->first);
     if (*kind != IndexKind::exhaustive) {
       if (Status s = (*collection)->build_approximate_index_now(); !s.is_ok()) {
         std::fprintf(stderr, "%s\n", s.to_string().c_str());
@@ -371,15 +381,10 @@ int main(int argc, char** argv) {
     }
   }
   if (refit) {
-    RefitProgress progress;
-    const auto started = Clock::now();
-    if (Result<std::uint64_t> generation = (*collection)->refit(RefitOptions{}, progress); !generation) {
-      std::fprintf(stderr, "%s\n", generation.status().to_string().c_str());
-      return 1;
-    }
-    const double seconds = milliseconds(Clock::now() - started) / 1000;
-    std::printf("landmark refit (fit, re-sketch every shape, switch): %.2f s, %.0f shapes/s\n", seconds,
-                static_cast<double>(progress.shapes_done) / seconds);
+    const std::optional<std::pair<double, double>> refitted = run_refit();
+    if (!refitted) return 1;
+    std::printf("landmark refit (fit, re-sketch every shape, switch): %.2f s, %.0f shapes/s\n", refitted->first,
+                refitted->second);
   }
   if (std::getenv("WAYMARK_BENCHMARK_KEEP") != nullptr) {
     std::printf("collection kept in %s\n", directory.string().c_str());

@@ -42,6 +42,38 @@ std::string snapshot_bytes(const ApproximateIndex& index, std::uint64_t generati
   return bytes;
 }
 
+// `count` vectors of `dimension` values drawn uniformly from [0, 10) by `random`, labelled
+// first_label, first_label + 1, … (seeded, invented).
+struct LabelledVectors {
+  std::vector<std::int64_t> labels;
+  std::vector<float> vectors;
+};
+LabelledVectors uniform_vectors(std::size_t count, std::size_t dimension, std::mt19937& random,
+                                std::int64_t first_label = 1) {
+  LabelledVectors drawn;
+  for (std::size_t r = 0; r < count; ++r) {
+    drawn.labels.push_back(first_label + static_cast<std::int64_t>(r));
+    for (std::size_t j = 0; j < dimension; ++j) drawn.vectors.push_back(std::uniform_real_distribution<float>(0, 10)(random));
+  }
+  return drawn;
+}
+
+// What VectorIndex::copy() of an index holding `drawn` gives.
+VectorIndex::Contents contents_of(const LabelledVectors& drawn, std::size_t dimension) {
+  VectorIndex all(dimension);
+  REQUIRE(all.add(drawn.labels, drawn.vectors).is_ok());
+  return all.copy();
+}
+
+// A graph built over `drawn`, comparing every value.
+std::unique_ptr<ApproximateIndex> graph_over(const LabelledVectors& drawn, std::size_t dimension) {
+  ApproximateIndexSettings settings;
+  settings.minimum_size = 1;
+  auto graph = std::make_unique<ApproximateIndex>(IndexKind::graph, std::vector<double>(dimension, 1.0), dimension, settings);
+  REQUIRE(graph->build(contents_of(drawn, dimension)).is_ok());
+  return graph;
+}
+
 CollectionSettings approximate_settings(IndexKind kind) {
   CollectionSettings settings = settings_with(32);
   settings.index_kind = kind;
@@ -379,12 +411,7 @@ TEST_CASE("ASnapshotOfAnotherVectorLengthIsRefused") {
 TEST_CASE("GraphCandidatesCarryTheBoundOverTheValuesAsked") {
   constexpr std::size_t kCompared = 3, kDimension = 5, kCount = 200;
   std::mt19937 random(3);
-  std::vector<std::int64_t> labels;
-  std::vector<float> vectors;
-  for (std::size_t r = 0; r < kCount; ++r) {
-    labels.push_back(static_cast<std::int64_t>(r + 1));
-    for (std::size_t j = 0; j < kDimension; ++j) vectors.push_back(std::uniform_real_distribution<float>(0, 10)(random));
-  }
+  const auto [labels, vectors] = uniform_vectors(kCount, kDimension, random);
   ApproximateIndexSettings settings;
   settings.minimum_size = 1;
   const std::vector<double> weights(kCompared, 1.0);
@@ -430,34 +457,15 @@ TEST_CASE("GraphCandidatesCarryTheBoundOverTheValuesAsked") {
 TEST_CASE("AWidenedGraphWalkHandsOutEachCandidateOnceAndFindsWhatAFreshWalkFinds") {
   constexpr std::size_t kDimension = 32, kStored = 5000, kFresh = 50;
   std::mt19937 random(5);
-  auto random_vector = [&] {
-    std::vector<float> vector(kDimension);
-    for (float& value : vector) value = std::uniform_real_distribution<float>(0, 10)(random);
-    return vector;
-  };
-  std::vector<std::int64_t> labels;
-  std::vector<float> vectors;
-  for (std::size_t r = 0; r < kStored; ++r) {
-    labels.push_back(static_cast<std::int64_t>(r + 1));
-    const std::vector<float> vector = random_vector();
-    vectors.insert(vectors.end(), vector.begin(), vector.end());
-  }
-  ApproximateIndexSettings settings;
-  settings.minimum_size = 1;
-  VectorIndex all(kDimension);
-  REQUIRE(all.add(labels, vectors).is_ok());
-  ApproximateIndex graph(IndexKind::graph, std::vector<double>(kDimension, 1.0), kDimension, settings);
-  REQUIRE(graph.build(all.copy()).is_ok());
+  LabelledVectors stored = uniform_vectors(kStored, kDimension, random);
+  const std::unique_ptr<ApproximateIndex> built = graph_over(stored, kDimension);
+  ApproximateIndex& graph = *built;
   // Written after the build: searched beside the graph, in the fresh index.
-  std::vector<std::int64_t> fresh_labels;
-  std::vector<float> fresh_vectors;
-  for (std::size_t r = 0; r < kFresh; ++r) {
-    fresh_labels.push_back(static_cast<std::int64_t>(kStored + r + 1));
-    const std::vector<float> vector = random_vector();
-    fresh_vectors.insert(fresh_vectors.end(), vector.begin(), vector.end());
-  }
-  REQUIRE(graph.added(fresh_labels, fresh_vectors).is_ok());
-  vectors.insert(vectors.end(), fresh_vectors.begin(), fresh_vectors.end());
+  const LabelledVectors fresh = uniform_vectors(kFresh, kDimension, random, kStored + 1);
+  REQUIRE(graph.added(fresh.labels, fresh.vectors).is_ok());
+  const std::vector<std::int64_t>& labels = stored.labels;
+  std::vector<float>& vectors = stored.vectors;
+  vectors.insert(vectors.end(), fresh.vectors.begin(), fresh.vectors.end());
 
   auto linf = [&](std::int64_t label, const std::vector<float>& query) {
     float distance = 0;
@@ -468,7 +476,7 @@ TEST_CASE("AWidenedGraphWalkHandsOutEachCandidateOnceAndFindsWhatAFreshWalkFinds
   };
   std::size_t widened_found = 0, fresh_walk_found = 0;
   for (int q = 0; q < 20; ++q) {
-    const std::vector<float> query = random_vector();
+    const std::vector<float> query = uniform_vectors(1, kDimension, random).vectors;
     Result<ApproximateIndex::CandidateWalk> walk = graph.walk(query);
     REQUIRE(walk.is_ok());
     Result<std::vector<Neighbour>> first = walk->next(40);
@@ -523,25 +531,15 @@ TEST_CASE("AWidenedGraphWalkHandsOutEachCandidateOnceAndFindsWhatAFreshWalkFinds
 TEST_CASE("AWalkTakesNothingMoreFromAGraphRebuiltSinceItBegan") {
   constexpr std::size_t kDimension = 4, kStored = 1000;
   std::mt19937 random(9);
-  std::vector<std::int64_t> labels;
-  std::vector<float> vectors;
-  for (std::size_t r = 0; r < kStored; ++r) {
-    labels.push_back(static_cast<std::int64_t>(r + 1));
-    for (std::size_t j = 0; j < kDimension; ++j) vectors.push_back(std::uniform_real_distribution<float>(0, 10)(random));
-  }
-  ApproximateIndexSettings settings;
-  settings.minimum_size = 1;
-  VectorIndex all(kDimension);
-  REQUIRE(all.add(labels, vectors).is_ok());
-  ApproximateIndex graph(IndexKind::graph, std::vector<double>(kDimension, 1.0), kDimension, settings);
-  REQUIRE(graph.build(all.copy()).is_ok());
+  const LabelledVectors stored = uniform_vectors(kStored, kDimension, random);
+  const std::unique_ptr<ApproximateIndex> graph = graph_over(stored, kDimension);
   const std::vector<float> query{5, 5, 5, 5};
-  Result<ApproximateIndex::CandidateWalk> walk = graph.walk(query);
+  Result<ApproximateIndex::CandidateWalk> walk = graph->walk(query);
   REQUIRE(walk.is_ok());
   Result<std::vector<Neighbour>> first = walk->next(40);
   REQUIRE(first.is_ok());
   CHECK(first->size() == 40);
-  REQUIRE(graph.build(all.copy()).is_ok());
+  REQUIRE(graph->build(contents_of(stored, kDimension)).is_ok());
   Result<std::vector<Neighbour>> after = walk->next(400);
   REQUIRE(after.is_ok());
   CHECK(after->empty());
