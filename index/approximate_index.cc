@@ -98,9 +98,8 @@ using GraphEntry = std::pair<float, faiss::HNSW::storage_idx_t>;  // (distance, 
 // The bottom layer's walk between steps (walk_graph), so that a later step with a larger ef
 // goes on from where the last stopped.
 struct GraphWalkState {
-  bool started = false;
   std::vector<GraphEntry> unexpanded;  // heap, nearest on top: reached, not expanded yet
-  std::vector<GraphEntry> kept;        // heap, farthest on top: the ef nearest reached
+  std::vector<GraphEntry> kept;        // heap, farthest on top: the ef nearest reached (empty: not begun)
   // Reached while the list was full and no nearer than its farthest: neither queued nor kept.
   std::vector<GraphEntry> passed_over;
   // Kept, then pushed out of the full list (queued still, or expanded already).
@@ -182,8 +181,7 @@ void walk_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t e
     }
   };
 
-  if (!state.started) {
-    state.started = true;
+  if (state.kept.empty()) {
     faiss::HNSW::storage_idx_t nearest = hnsw.entry_point;
     float nearest_distance = distance_to(nearest);
     for (int level = hnsw.max_level; level > 0; --level) {
@@ -206,9 +204,8 @@ void walk_graph(const faiss::IndexHNSW& graph, const float* query, std::size_t e
     keep({nearest_distance, nearest});
     visited.set(nearest);
   } else {
-    std::vector<GraphEntry> passed_over = std::move(state.passed_over), dropped = std::move(state.dropped);
-    state.passed_over.clear();
-    state.dropped.clear();
+    const std::vector<GraphEntry> passed_over = std::exchange(state.passed_over, {});
+    const std::vector<GraphEntry> dropped = std::exchange(state.dropped, {});
     for (const GraphEntry& entry : passed_over) {
       queue(entry);
       keep(entry);
