@@ -59,9 +59,9 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // 1.92–1.94 ms for Fréchet; reports/performance-log.md).
 // Shifted rings (tests/index/approximate_index_test.cc): Fréchet 0.985 at 40·k.
 constexpr std::size_t kFastCandidatesPerHit = 40;
-constexpr std::size_t kFirstStepPerHit = 20;  // a graph's first step, widened as run_query says
-constexpr std::size_t kWideFastCandidatesPerHit = 100;      // the Fréchet metrics; partitioned indexes
-constexpr std::size_t kWidestFastCandidatesPerHit = 150;    // the Fréchet metrics on partitioned indexes
+constexpr std::size_t kFirstStepPerHit = 20;               // a graph's first step, widened as run_query says
+constexpr std::size_t kWideFastCandidatesPerHit = 100;    // the Fréchet metrics; partitioned indexes
+constexpr std::size_t kWidestFastCandidatesPerHit = 150;  // the Fréchet metrics on partitioned indexes
 // How many of fast mode's Fréchet candidates, per hit asked for, get an upper bound from their
 // float copies before any is scored (run_query). Each costs about 2.4 µs (the bound's walk is
 // serial); a store read and search it saves, about 30 µs. Fréchet fast p50 at 1M, graph

@@ -131,12 +131,8 @@ Status VectorIndex::add(std::span<const std::int64_t> labels, std::span<const fl
   }
   vectors_.insert(vectors_.end(), vectors.begin(), vectors.end());
   // The first vectors fit the scale; later ones are coded at it until too many fall outside.
-  if (code_low_.empty() || rows_off_scale_ > std::max<std::size_t>(64, labels_.size() / 64)) {
-    fit_code_scale();
-  } else {
-    encode_rows(labels_.size() - labels.size());
-    if (rows_off_scale_ > std::max<std::size_t>(64, labels_.size() / 64)) fit_code_scale();
-  }
+  if (!code_low_.empty()) encode_rows(labels_.size() - labels.size());
+  if (code_low_.empty() || rows_off_scale_ > std::max<std::size_t>(64, labels_.size() / 64)) fit_code_scale();
   return Status::ok();
 }
 
