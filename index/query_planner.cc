@@ -59,7 +59,7 @@ constexpr double kInfinity = std::numeric_limits<double>::infinity();
 // 1.92–1.94 ms for Fréchet; reports/performance-log.md).
 // Shifted rings (tests/index/approximate_index_test.cc): Fréchet 0.985 at 40·k.
 constexpr std::size_t kFastCandidatesPerHit = 40;
-constexpr std::size_t kFirstStepPerHit = 20;               // a graph's first step, widened as run_query says
+constexpr std::size_t kFirstStepPerHit = 20;              // a graph's first step, widened as run_query says
 constexpr std::size_t kWideFastCandidatesPerHit = 100;    // the Fréchet metrics; partitioned indexes
 constexpr std::size_t kWidestFastCandidatesPerHit = 150;  // the Fréchet metrics on partitioned indexes
 // How many of fast mode's Fréchet candidates, per hit asked for, get an upper bound from their
